@@ -1,0 +1,25 @@
+"""Error types. Each subclass also inherits the matching built-in so callers may catch either."""
+
+
+class ScreenerError(Exception):
+    """Base class of every error screener raises on purpose (bad input, bad parameters, no convergence)."""
+
+
+class StructureError(ScreenerError, ValueError):
+    """A structure is malformed or physically impossible (cell, positions, elements, occupancy)."""
+
+
+class FormatError(StructureError):
+    """A structure file cannot be parsed, or its format is not recognised."""
+
+
+class ParameterError(ScreenerError, ValueError):
+    """A tight-binding parameter, option or parameter file is invalid."""
+
+
+class SymmetryError(ScreenerError, RuntimeError):
+    """spglib could not determine the symmetry of a structure."""
+
+
+class ConvergenceError(ScreenerError, RuntimeError):
+    """A numerical procedure (Fermi level, k-mesh refinement, minimisation) did not converge."""
