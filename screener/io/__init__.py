@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import importlib
+import re
 from pathlib import Path
 
 from ..errors import FormatError, ScreenerError
@@ -16,16 +17,32 @@ FORMATS: dict[str, tuple[str, tuple[str, ...]]] = {
 }
 
 
-def guess_format(path: str | Path) -> str:
-    """Format name from a file name (extension, or the names POSCAR/CONTCAR), else FormatError."""
+def guess_format(path: str | Path, sniff: bool = True) -> str:
+    """Format name from the file name (extension, or the names POSCAR/CONTCAR), else from the content.
+
+    Content rules, used only when the name says nothing and ``sniff`` is true and the file exists: a JSON object
+    (first character ``{``) is json; a ``data_`` line or a ``_cell_length`` tag is cif; other text is tried as
+    POSCAR. Binary files and, without sniffing, unknown names raise FormatError.
+    """
     name = Path(path).name.lower()
     for fmt, (_, endings) in FORMATS.items():
         if any(name.endswith(e) or name.startswith(e.lstrip(".")) and not e.startswith(".") for e in endings):
             return fmt
-    raise FormatError(
-        f"{path}: cannot tell the file format from the name; use one of the endings "
-        f"{', '.join(e for _, es in FORMATS.values() for e in es)} or pass --format {{{','.join(FORMATS)}}}"
-    )
+    hint = (f"use one of the endings {', '.join(e for _, es in FORMATS.values() for e in es)} "
+            f"or pass --format {{{','.join(FORMATS)}}}")
+    if not sniff or not Path(path).is_file():
+        raise FormatError(f"{path}: cannot tell the file format from the name; {hint}")
+    with open(path, "rb") as fh:
+        head = fh.read(4096)
+    if b"\x00" in head or not head.strip():
+        what = "is empty" if not head.strip() else "holds binary data"
+        raise FormatError(f"{path}: unrecognised format: the file {what}; expected CIF, POSCAR or JSON text")
+    text = head.decode("utf-8", errors="replace")
+    if text.lstrip().startswith("{"):
+        return "json"
+    if re.search(r"^\s*data_", text, flags=re.MULTILINE) or "_cell_length" in text:
+        return "cif"
+    return "poscar"
 
 
 def _module(fmt: str):
@@ -37,9 +54,9 @@ def _module(fmt: str):
 def read_structure(path: str | Path, format: str | None = None, **options) -> Crystal:
     """Read one structure file into a Crystal. Errors name the file."""
     path = Path(path)
-    fmt = format or guess_format(path)
     if not path.is_file():
-        raise FormatError(f"{path}: no such file")
+        raise FormatError(f"{path}: no such file" + (" (it is a folder)" if path.is_dir() else ""))
+    fmt = format or guess_format(path)
     try:
         return _module(fmt).read(path, **options)
     except ScreenerError as exc:
@@ -47,9 +64,12 @@ def read_structure(path: str | Path, format: str | None = None, **options) -> Cr
         if not msg.startswith(str(path)):
             msg = f"{path}: {msg}"
         raise type(exc)(msg) from exc
+    except (UnicodeDecodeError, OSError) as exc:
+        # readers decode and open files themselves; this is the net for what they did not foresee
+        raise FormatError(f"{path}: cannot read the file as {fmt}: {exc}") from exc
 
 
 def write_structure(crystal: Crystal, path: str | Path, format: str | None = None, **options) -> None:
     """Write a Crystal to ``path`` in the given (or guessed) format."""
-    fmt = format or guess_format(path)
+    fmt = format or guess_format(path, sniff=False)
     _module(fmt).write(crystal, Path(path), **options)
