@@ -31,7 +31,73 @@ def _print_json(obj) -> None:
 
 # ---------------------------------------------------------------------------------------------- info
 def cmd_info(args) -> int:
-    raise NotImplementedError("screener info is being written")
+    """Structure summary. ``--json`` prints one object with the keys
+
+    ``file``, ``formula`` (this cell), ``n_atoms``, ``space_group`` {``symbol``, ``number``}, ``symprec_A``,
+    ``primitive_atoms``, ``lattice_A`` (rows, Å), ``cell`` {``a_A`` … ``gamma_deg``, ``volume_A3``,
+    ``volume_per_atom_A3``}, ``sites`` [{``label``, ``element``, ``frac``, ``wyckoff`` (multiplicity + letter
+    in the conventional cell), ``orbit`` (label of the first symmetry-equivalent atom)}], ``valence_electrons``
+    (per cell, default counts), ``neighbour_shells_A`` [{``distance_A``, ``count_per_atom``}] (shells up to 1.6 ×
+    the shortest contact, counts averaged over all atoms). The object also reads back as a screener JSON structure.
+    """
+    import numpy as np
+
+    from .elements import valence_electrons
+    from .io.cif import cell_parameters
+    from .symmetry import analyse, standard_cell
+
+    crystal = _read(args)
+    sym = analyse(crystal, symprec=args.symprec)
+    n_conventional = standard_cell(crystal, symprec=args.symprec).n_atoms
+    a, b, c, alpha, beta, gamma = cell_parameters(crystal.lattice_A)
+    orbit_size = {int(r): int(n) for r, n in zip(*np.unique(sym.equivalent_atoms, return_counts=True), strict=True)}
+    # Wyckoff multiplicity counts the orbit in the conventional cell: the orbit's share of atoms is cell-independent
+    mult = {r: round(n * n_conventional / crystal.n_atoms) for r, n in orbit_size.items()}
+    wyckoff = [f"{mult[int(r)]}{w}" for r, w in zip(sym.equivalent_atoms, sym.wyckoff, strict=True)]
+    shells = crystal.neighbour_shells()
+    n_val = float(sum(valence_electrons(s) for s in crystal.species))
+    summary = {
+        "file": str(args.file),
+        "formula": crystal.formula,
+        "n_atoms": crystal.n_atoms,
+        "space_group": {"symbol": sym.symbol, "number": sym.number},
+        "symprec_A": sym.symprec_A,
+        "primitive_atoms": sym.primitive_atoms,
+        "lattice_A": crystal.lattice_A.tolist(),
+        "cell": {"a_A": a, "b_A": b, "c_A": c, "alpha_deg": alpha, "beta_deg": beta, "gamma_deg": gamma,
+                 "volume_A3": crystal.volume_A3, "volume_per_atom_A3": crystal.volume_A3 / crystal.n_atoms},
+        "sites": [
+            {"label": lab, "element": el, "frac": f.tolist(), "wyckoff": w,
+             "orbit": crystal.labels[int(r)]}
+            for lab, el, f, w, r in zip(crystal.labels, crystal.species, crystal.frac, wyckoff,
+                                        sym.equivalent_atoms, strict=True)
+        ],
+        "valence_electrons": n_val,
+        "neighbour_shells_A": [{"distance_A": s.distance_A, "count_per_atom": s.count_per_atom} for s in shells],
+    }
+    if args.json:
+        _print_json(summary)
+        return 0
+    out = [
+        f"file              {args.file}",
+        f"formula           {crystal.formula}  ({crystal.n_atoms} atoms in this cell, "
+        f"{sym.primitive_atoms} in the primitive cell)",
+        f"space group       {sym.symbol} (No. {sym.number}), symprec {sym.symprec_A:g} Å",
+        f"cell              a={a:.4f} b={b:.4f} c={c:.4f} Å   α={alpha:.3f} β={beta:.3f} γ={gamma:.3f}°",
+        f"volume            {crystal.volume_A3:.3f} Å^3  ({crystal.volume_A3 / crystal.n_atoms:.3f} Å^3 per atom)",
+        f"valence electrons {n_val:g} per cell ({n_val / crystal.n_atoms:g} per atom, default counts)",
+        "",
+        "symmetry-distinct sites",
+        f"  {'label':<10} {'element':<7} {'Wyckoff':<7} {'in cell':>7}   {'x':>8} {'y':>8} {'z':>8}",
+    ]
+    for r in orbit_size:
+        x, y, z = crystal.frac[r]
+        out.append(f"  {crystal.labels[r]:<10} {crystal.species[r]:<7} {wyckoff[r]:<7} {orbit_size[r]:>7}   "
+                   f"{x:8.5f} {y:8.5f} {z:8.5f}")
+    out += ["", "neighbour shells (averaged over atoms)", f"  {'distance (Å)':>12} {'neighbours per atom':>20}"]
+    out += [f"  {s.distance_A:12.4f} {s.count_per_atom:20g}" for s in shells]
+    print("\n".join(out))
+    return 0
 
 
 # ---------------------------------------------------------------------------------------------- bands
