@@ -1,0 +1,745 @@
+"""Electrons on a k-mesh: occupations, Fermi level, band energy, density of states.
+
+Two families of Brillouin-zone integration are offered:
+
+* smearing — each eigenvalue is broadened into a Fermi–Dirac, Gaussian or Methfessel–Paxton line
+  (Methfessel & Paxton, PRB 40, 3616 (1989)); the free energy F = E − σS is reported too, and for Fermi–Dirac and
+  Gaussian the band energy is the σ→0 estimate (E + F)/2 (Gillan, J. Phys.: Condens. Matter 1, 689 (1989));
+* the linear tetrahedron method with Blöchl's corrections (Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994)),
+  on the full Γ-centred grid unfolded from the irreducible wedge.
+
+Energies are in eV, counts are electrons (or states) per cell including the spin degeneracy factor
+(2, or 1 when spin–orbit coupling doubles the basis). Eigenvalues are expected ascending along the band axis.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq
+from scipy.special import erfc, eval_hermite, expit, factorial, xlogy
+
+from .errors import ConvergenceError, ParameterError
+from .symmetry import IrreducibleMesh
+
+#: Names accepted for ``method``.
+SMEARING_METHODS = ("gaussian", "fermi-dirac", "methfessel-paxton")
+METHODS = ("tetrahedron",) + SMEARING_METHODS
+
+#: Rows (band × tetrahedron) processed at once; bounds temporary memory to a few tens of MB.
+_CHUNK_ROWS = 1 << 18
+
+#: Half-width of the window outside which a smeared line is treated as a step, in units of σ.
+#: erfc(12) ≈ 1e-64 and exp(-46) ≈ 1e-20, so cutting there changes nothing at double precision.
+_WINDOW_SIGMA = {"gaussian": 12.0, "methfessel-paxton": 12.0, "fermi-dirac": 46.0}
+
+
+# ============================================================================================== results
+@dataclass(frozen=True, eq=False)
+class BandEnergyResult:
+    """Fermi level, band energy and gap of a tight-binding model integrated over a k-mesh."""
+
+    fermi_level_eV: float
+    """Fermi level, eV (mid-gap for an insulator with the tetrahedron method)."""
+    band_energy_eV: float
+    """Band energy per cell, eV (Σ occupied ε; for Gaussian/Fermi–Dirac smearing the σ→0 estimate (E+F)/2)."""
+    free_energy_eV: float
+    """Free energy F = E − σS per cell, eV (equal to the band energy for the tetrahedron method)."""
+    n_electrons: float
+    """Valence electrons per cell that were placed in the bands."""
+    gap_eV: float
+    """Band gap on the mesh, eV; 0 for a metal, for a fractional band filling, or with no empty band left."""
+    method: str
+    """Integration method: 'tetrahedron', 'gaussian', 'fermi-dirac' or 'methfessel-paxton'."""
+    width_eV: float
+    """Smearing width σ, eV (0 for the tetrahedron method)."""
+    mesh: tuple[int, int, int]
+    """k-mesh sizes along the three reciprocal vectors."""
+    n_kpoints_irreducible: int
+    """Number of irreducible k-points the eigenvalues were computed at."""
+    smeared_energy_eV: float = float("nan")
+    """Raw Σ w f ε per cell, eV, before any σ→0 correction (equal to the band energy for the tetrahedron method)."""
+    spin_degeneracy: int = 2
+    """Electrons per orbital state: 2, or 1 when spin–orbit coupling doubles the basis."""
+    occupations: np.ndarray | None = None
+    """(M, nb) electrons per cell carried by each irreducible state (k-weight × occupation × spin factor);
+    Σ occupations·eigenvalues = smeared_energy_eV (tetrahedron: including Blöchl's corrections)."""
+    eigenvalues_eV: np.ndarray | None = None
+    """(M, nb) eigenvalues at the irreducible k-points, eV, ascending along the band axis."""
+    kmesh: IrreducibleMesh | None = None
+    """The irreducible mesh used (mapping, weights), so DOS can be computed without re-diagonalising."""
+
+
+@dataclass(frozen=True, eq=False)
+class DOSResult:
+    """Density of states on an energy grid, total and (optionally) projected."""
+
+    energies_eV: np.ndarray
+    """(ne,) energy grid, eV."""
+    dos_per_eV: np.ndarray
+    """(ne,) states per eV per cell, both spins (× spin degeneracy)."""
+    states_below: np.ndarray
+    """(ne,) integrated DOS: states per cell (both spins) below each energy."""
+    projected_per_eV: np.ndarray | None
+    """(ne, nproj) projected DOS, states per eV per cell, or None when no projections were given."""
+    method: str
+    """'tetrahedron', 'gaussian', 'fermi-dirac' or 'methfessel-paxton'."""
+    width_eV: float
+    """Broadening σ, eV (0 for the tetrahedron method)."""
+    spin_degeneracy: int
+    """Spin factor included in the DOS (2, or 1 with spin–orbit)."""
+
+
+# ============================================================================================== smearing
+def _norm_method(method, allowed=METHODS) -> str:
+    m = str(method).strip().lower().replace("_", "-").replace(" ", "-")
+    if m not in allowed:
+        raise ParameterError(
+            f"unknown Brillouin-zone integration method {method!r}; allowed: {', '.join(allowed)}"
+        )
+    return m
+
+
+def _check_width(width_eV, method: str) -> float:
+    w = float(width_eV)
+    if method != "tetrahedron" and not (np.isfinite(w) and w > 0):
+        raise ParameterError(
+            f"smearing width width_eV must be a positive number of eV for method {method!r}, got {width_eV!r}; "
+            "typical values are 0.01–0.2 eV"
+        )
+    return w
+
+
+def _check_spin(spin_degeneracy) -> int:
+    if spin_degeneracy not in (1, 2):
+        raise ParameterError(
+            f"spin_degeneracy must be 2 (spin-degenerate bands) or 1 (spin–orbit basis), got {spin_degeneracy!r}"
+        )
+    return int(spin_degeneracy)
+
+
+def _mp_coefficients(order: int) -> np.ndarray:
+    """A_n = (−1)^n / (n! 4^n √π), n = 0..order (Methfessel & Paxton, PRB 40, 3616 (1989), eq. 10)."""
+    n = np.arange(order + 1)
+    return (-1.0) ** n / (factorial(n) * 4.0**n * np.sqrt(np.pi))
+
+
+def occupation(x, method: str = "gaussian", mp_order: int = 1) -> np.ndarray:
+    """Occupation f(x) of a state at x = (ε − μ)/σ (1 deep below μ, 0 far above).
+
+    Fermi–Dirac: 1/(1+eˣ); Gaussian: erfc(x)/2; Methfessel–Paxton of order N:
+    erfc(x)/2 + Σ_{n=1..N} A_n H_{2n−1}(x) e^{−x²} (Methfessel & Paxton, PRB 40, 3616 (1989), eq. 11),
+    which can leave [0, 1] slightly.
+    """
+    method = _norm_method(method, SMEARING_METHODS)
+    x = np.asarray(x, dtype=float)
+    if method == "fermi-dirac":
+        return expit(-x)
+    f = 0.5 * erfc(x)
+    if method == "methfessel-paxton":
+        a = _mp_coefficients(mp_order)
+        g = np.exp(-x * x)
+        for n in range(1, mp_order + 1):  # loop over the (few) expansion orders, not over states
+            f = f + a[n] * eval_hermite(2 * n - 1, x) * g
+    return f
+
+
+def delta(x, method: str = "gaussian", mp_order: int = 1) -> np.ndarray:
+    """Broadened δ-function −df/dx, per unit x (divide by σ for per eV)."""
+    method = _norm_method(method, SMEARING_METHODS)
+    x = np.asarray(x, dtype=float)
+    if method == "fermi-dirac":
+        f = expit(-x)
+        return f * (1.0 - f)
+    a = _mp_coefficients(mp_order if method == "methfessel-paxton" else 0)
+    g = np.exp(-x * x)
+    d = a[0] * g
+    for n in range(1, len(a)):
+        d = d + a[n] * eval_hermite(2 * n, x) * g
+    return d
+
+
+def entropy_term(x, method: str = "gaussian", mp_order: int = 1) -> np.ndarray:
+    """Generalised entropy s(x) per state, so that F = E − σ Σ w s (dimensionless, per spin state).
+
+    Fermi–Dirac: −[f ln f + (1−f) ln(1−f)]; Gaussian: e^{−x²}/(2√π); Methfessel–Paxton of order N:
+    ½ A_N H_{2N}(x) e^{−x²} (Methfessel & Paxton, PRB 40, 3616 (1989)).
+    """
+    method = _norm_method(method, SMEARING_METHODS)
+    x = np.asarray(x, dtype=float)
+    if method == "fermi-dirac":
+        f = expit(-x)
+        return -(xlogy(f, f) + xlogy(1.0 - f, 1.0 - f))
+    n = mp_order if method == "methfessel-paxton" else 0
+    a = _mp_coefficients(n)
+    return 0.5 * a[n] * eval_hermite(2 * n, x) * np.exp(-x * x)
+
+
+# ============================================================================================== checks
+def _check_eigs(eigs_eV, weights=None) -> np.ndarray:
+    e = np.asarray(eigs_eV, dtype=float)
+    if e.ndim == 1:
+        e = e[:, None]
+    if e.ndim != 2 or e.size == 0:
+        raise ParameterError(f"eigenvalues must be a non-empty (n_kpoints, n_bands) array, got shape {np.shape(eigs_eV)}")
+    if not np.all(np.isfinite(e)):
+        raise ParameterError("eigenvalues contain NaN or infinite values; check the Hamiltonian parameters")
+    if weights is not None and np.shape(weights) != (e.shape[0],):
+        raise ParameterError(
+            f"got {np.shape(weights)} k-point weights for {e.shape[0]} k-points; give one weight per k-point"
+        )
+    return e
+
+
+def _check_n_electrons(n_electrons, n_bands: int, spin_degeneracy: int) -> float:
+    cap = spin_degeneracy * n_bands
+    n = float(n_electrons)
+    if not (np.isfinite(n) and -1e-9 <= n <= cap + 1e-9 * max(1.0, cap)):
+        raise ParameterError(
+            f"n_electrons = {n_electrons!r} is outside the allowed range 0 … {cap} "
+            f"({spin_degeneracy} × {n_bands} bands); check the valence electron counts or the orbital basis"
+        )
+    return min(max(n, 0.0), float(cap))
+
+
+def _filled_bands(n_electrons: float, spin_degeneracy: int) -> int | None:
+    """Number of completely filled bands when the filling is (close to) integer, else None."""
+    q = n_electrons / spin_degeneracy
+    nq = round(q)
+    return int(nq) if abs(q - nq) < 1e-6 else None
+
+
+def _gap(e: np.ndarray, n_electrons: float, spin_degeneracy: int) -> tuple[float, float, float]:
+    """(gap, valence-band top, conduction-band bottom) over the mesh; gap 0 (and NaNs) when not applicable."""
+    nf = _filled_bands(n_electrons, spin_degeneracy)
+    if nf is None or nf <= 0 or nf >= e.shape[1]:
+        return 0.0, np.nan, np.nan
+    vbm = float(e[:, nf - 1].max())
+    cbm = float(e[:, nf].min())
+    return max(0.0, cbm - vbm), vbm, cbm
+
+
+# ============================================================================================== Fermi level
+def _smeared_count(e, w, mu, sigma, method, mp_order, g):
+    return g * float(np.sum(w[:, None] * occupation((e - mu) / sigma, method, mp_order)))
+
+
+def _solve_count(count, n_target, lo, hi, what):
+    """Root of count(μ) = n_target on [lo, hi] by Brent's method."""
+    f_lo, f_hi = count(lo) - n_target, count(hi) - n_target
+    if f_lo > 0 or f_hi < 0:
+        raise ConvergenceError(
+            f"could not bracket the Fermi level for {what}: electron count {f_lo + n_target:.6g} at {lo:.4f} eV "
+            f"and {f_hi + n_target:.6g} at {hi:.4f} eV for a target of {n_target:.6g}"
+        )
+    if f_lo == 0:
+        return lo
+    if f_hi == 0:
+        return hi
+    try:
+        return float(brentq(lambda m: count(m) - n_target, lo, hi, xtol=1e-12, rtol=4 * np.finfo(float).eps,
+                            maxiter=500))
+    except (RuntimeError, ValueError) as exc:
+        raise ConvergenceError(f"Fermi level search for {what} did not converge: {exc}") from exc
+
+
+def find_fermi_level(eigs_eV, weights, n_electrons, method="gaussian", width_eV=0.05, spin_degeneracy=2, *,
+                     mp_order: int = 1, kmesh: IrreducibleMesh | None = None, reciprocal_A=None) -> float:
+    """Fermi level (eV) that places ``n_electrons`` per cell in bands ``eigs_eV`` (n_k, nb) with k-weights.
+
+    Smearing methods bracket the level between the band extremes (widened by the smearing window) and solve
+    the electron count with Brent's method. ``method="tetrahedron"`` needs ``kmesh`` (the weights are then
+    taken from it). An insulator with integer filling gets the level at mid-gap when the count is flat there.
+    """
+    method = _norm_method(method)
+    g = _check_spin(spin_degeneracy)
+    width = _check_width(width_eV, method)
+    if method == "tetrahedron":
+        if kmesh is None:
+            raise ParameterError(
+                "find_fermi_level(method='tetrahedron') needs the k-mesh (kmesh=IrreducibleMesh) to build the "
+                "tetrahedra; pass it, or use a smearing method"
+            )
+        e = _check_eigs(eigs_eV, kmesh.weights)
+        n = _check_n_electrons(n_electrons, e.shape[1], g)
+        return _TetrahedronGrid(e, kmesh, reciprocal_A).fermi_level(n, g)
+    e = _check_eigs(eigs_eV, weights)
+    w = np.asarray(weights, dtype=float)
+    n = _check_n_electrons(n_electrons, e.shape[1], g)
+    return _smeared_fermi_level(e, w, n, method, width, g, mp_order)
+
+
+def _smeared_fermi_level(e, w, n, method, sigma, g, mp_order) -> float:
+    cap = g * e.shape[1] * float(w.sum())
+    emin, emax = float(e.min()), float(e.max())
+    if n <= 0:
+        return emin
+    if n >= cap:
+        return emax
+    pad = _WINDOW_SIGMA[method] * sigma + 1e-6
+    mu = _solve_count(lambda m: _smeared_count(e, w, m, sigma, method, mp_order, g), n, emin - pad, emax + pad,
+                      f"{method} smearing (σ = {sigma} eV)")
+    gap, vbm, cbm = _gap(e, n, g)
+    if gap > 0 and vbm < mu < cbm:
+        mid = 0.5 * (vbm + cbm)
+        # in a wide gap the count is flat to machine precision: any root is as good, pick the reproducible one
+        if abs(_smeared_count(e, w, mid, sigma, method, mp_order, g) - n) <= 1e-10 * max(1.0, n):
+            mu = mid
+    return float(mu)
+
+
+# ============================================================================================== tetrahedra
+# Corner offsets of one grid parallelepiped; corner c has offset bits (c & 1, c >> 1 & 1, c >> 2 & 1).
+_CORNER_BITS = np.array([[c & 1, (c >> 1) & 1, (c >> 2) & 1] for c in range(8)])
+# The six tetrahedra sharing the main diagonal 0 → (1,1,1): monotone edge paths through the cube, one per
+# permutation of the axes (the Freudenthal/Kuhn split; Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), Fig. 2).
+_PATHS = np.array([
+    [[0, 0, 0], e1, e1 + e2, [1, 1, 1]]
+    for e1, e2 in (
+        (np.eye(3, dtype=int)[a], np.eye(3, dtype=int)[b])
+        for a, b in ((0, 1), (0, 2), (1, 0), (1, 2), (2, 0), (2, 1))
+    )
+])  # (6, 4, 3)
+# Reflections mapping the 0 → 111 diagonal onto each of the four main diagonals.
+_FLIPS = np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]])
+
+
+def _tetra_offsets(mesh, reciprocal_A) -> np.ndarray:
+    """(6, 4, 3) integer corner offsets of the six tetrahedra, split along the shortest main diagonal.
+
+    Directions with a single mesh point are constant (no dispersion is sampled), so their step is taken as
+    zero when comparing diagonals; the split then reduces exactly to the lower-dimensional one.
+    """
+    if reciprocal_A is None:
+        flip = _FLIPS[0]
+    else:
+        rec = np.asarray(reciprocal_A, dtype=float)
+        steps = rec / np.asarray(mesh, dtype=float)[:, None]
+        steps[np.asarray(mesh) == 1] = 0.0
+        signs = 1 - 2 * _FLIPS  # (4, 3)
+        lengths = np.linalg.norm(signs @ steps, axis=1)
+        # first diagonal within rounding of the shortest, so equal diagonals give a reproducible choice
+        flip = _FLIPS[int(np.flatnonzero(lengths <= lengths.min() * (1 + 1e-9) + 1e-300)[0])]
+    return np.bitwise_xor(_PATHS, flip[None, None, :])
+
+
+def _tet_count(e, eps):
+    """Occupied fraction of each tetrahedron, rows of sorted corner energies e (n, 4) (Blöchl 1994, App. B)."""
+    eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
+    e1, e2, e3, e4 = e.T
+    out = np.zeros(len(e))
+    c1 = (e1 < eps) & (eps <= e2)
+    c2 = (e2 < eps) & (eps <= e3)
+    c3 = (e3 < eps) & (eps < e4)
+    out[eps >= e4] = 1.0
+    if c1.any():
+        a1, a2, a3, a4 = e[c1].T
+        out[c1] = (eps[c1] - a1) ** 3 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
+    if c2.any():
+        a1, a2, a3, a4 = e[c2].T
+        x = eps[c2] - a2
+        d21, d31, d41, d32, d42 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2
+        out[c2] = (d21**2 + 3 * d21 * x + 3 * x**2 - (d31 + d42) / (d32 * d42) * x**3) / (d31 * d41)
+    if c3.any():
+        a1, a2, a3, a4 = e[c3].T
+        out[c3] = 1.0 - (a4 - eps[c3]) ** 3 / ((a4 - a1) * (a4 - a2) * (a4 - a3))
+    return out
+
+
+def _tet_dos(e, eps):
+    """DOS of each tetrahedron per unit of its volume fraction, states/eV (Blöchl 1994, App. C)."""
+    eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
+    e1, e2, e3, e4 = e.T
+    out = np.zeros(len(e))
+    c1 = (e1 < eps) & (eps <= e2)
+    c2 = (e2 < eps) & (eps <= e3)
+    c3 = (e3 < eps) & (eps < e4)
+    if c1.any():
+        a1, a2, a3, a4 = e[c1].T
+        out[c1] = 3 * (eps[c1] - a1) ** 2 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
+    if c2.any():
+        a1, a2, a3, a4 = e[c2].T
+        x = eps[c2] - a2
+        d21, d31, d41, d32, d42 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2
+        out[c2] = (3 * d21 + 6 * x - 3 * (d31 + d42) / (d32 * d42) * x**2) / (d31 * d41)
+    if c3.any():
+        a1, a2, a3, a4 = e[c3].T
+        out[c3] = 3 * (a4 - eps[c3]) ** 2 / ((a4 - a1) * (a4 - a2) * (a4 - a3))
+    return out
+
+
+def _tet_weights(e, eps):
+    """(n, 4) integration weights of the sorted corners per unit volume fraction, without Blöchl's correction.
+
+    Σ_i w_i is the occupied fraction and Σ_i w_i ε_i the linearly interpolated occupied energy
+    (Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), Appendix B).
+    """
+    eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
+    e1, e2, e3, e4 = e.T
+    w = np.zeros((len(e), 4))
+    c1 = (e1 < eps) & (eps <= e2)
+    c2 = (e2 < eps) & (eps <= e3)
+    c3 = (e3 < eps) & (eps < e4)
+    w[eps >= e4] = 0.25
+    if c1.any():
+        a1, a2, a3, a4 = e[c1].T
+        x = eps[c1] - a1
+        d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
+        c = 0.25 * x**3 / (d21 * d31 * d41)
+        w[c1] = np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31, c * x / d41], 1)
+    if c2.any():
+        a1, a2, a3, a4 = e[c2].T
+        d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
+        x1, x2, y3, y4 = eps[c2] - a1, eps[c2] - a2, a3 - eps[c2], a4 - eps[c2]
+        k1 = 0.25 * x1**2 / (d41 * d31)
+        k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
+        k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
+        w[c2] = np.stack([
+            k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
+            k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
+            (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
+            (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
+        ], 1)
+    if c3.any():
+        a1, a2, a3, a4 = e[c3].T
+        y = a4 - eps[c3]
+        d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
+        c = 0.25 * y**3 / (d41 * d42 * d43)
+        w[c3] = np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
+                          0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
+    return w
+
+
+def _tet_corner_dos(e, eps):
+    """(n, 4) DOS carried by each sorted corner per unit volume fraction (sums to ``_tet_dos``).
+
+    The linear interpolant's constant-energy cross-section is a triangle or a quadrilateral; each corner's share
+    is the cross-section average of its barycentric coordinate (affine maps keep area ratios, so areas are
+    measured in barycentric space).
+    """
+    n = len(e)
+    out = np.zeros((n, 4))
+    dos = _tet_dos(e, eps)
+    eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
+    e1, e2, e3, e4 = e.T
+    c1 = (e1 < eps) & (eps <= e2)
+    c2 = (e2 < eps) & (eps <= e3)
+    c3 = (e3 < eps) & (eps < e4)
+    if c1.any():
+        a = e[c1]
+        t = (eps[c1] - a[:, :1]) / (a[:, 1:] - a[:, :1])  # positions along edges 1→2, 1→3, 1→4
+        lam = np.concatenate([(3 - t.sum(1, keepdims=True)), t], 1) / 3
+        out[c1] = dos[c1, None] * lam
+    if c3.any():
+        a = e[c3]
+        t = (a[:, 3:] - eps[c3]) / (a[:, 3:] - a[:, :3])  # positions along edges 4→1, 4→2, 4→3
+        lam = np.concatenate([t, (3 - t.sum(1, keepdims=True))], 1) / 3
+        out[c3] = dos[c3, None] * lam
+    if c2.any():
+        a = e[c2]
+        eye = np.eye(4)
+
+        def point(i, j):  # barycentric coordinates of the crossing on edge i→j
+            t = ((eps[c2] - a[:, i]) / (a[:, j] - a[:, i]))[:, None]
+            return (1 - t) * eye[i] + t * eye[j]
+
+        p13, p14, p24, p23 = point(0, 2), point(0, 3), point(1, 3), point(1, 2)
+
+        def area(p, q, r):
+            u, v = q - p, r - p
+            return 0.5 * np.sqrt(np.maximum((u * u).sum(1) * (v * v).sum(1) - (u * v).sum(1) ** 2, 0.0))
+
+        s1, s2 = area(p13, p14, p24), area(p13, p24, p23)
+        tot = s1 + s2
+        tot = np.where(tot > 0, tot, 1.0)
+        lam = (s1[:, None] * (p13 + p14 + p24) + s2[:, None] * (p13 + p24 + p23)) / (3 * tot[:, None])
+        # a zero-area cross-section (degenerate corners) carries no DOS anyway; fall back to equal shares
+        lam = np.where((s1 + s2)[:, None] > 0, lam, 0.25)
+        out[c2] = dos[c2, None] * lam
+    return out
+
+
+class _TetrahedronGrid:
+    """Band × tetrahedron rows of the full mesh, corner energies sorted, ready for repeated integration."""
+
+    def __init__(self, eigs_ir: np.ndarray, kmesh: IrreducibleMesh, reciprocal_A=None):
+        mesh = np.asarray(kmesh.mesh, dtype=int)
+        n_full = int(np.prod(mesh))
+        nb = eigs_ir.shape[1]
+        if len(kmesh.mapping) != n_full or len(kmesh.grid_address) != n_full:
+            raise ParameterError(
+                f"the tetrahedron method needs the full {tuple(mesh)} grid ({n_full} points), but the k-mesh holds "
+                f"{len(kmesh.mapping)}; build it with screener.symmetry.irreducible_mesh"
+            )
+        if eigs_ir.shape[0] != len(kmesh.ir_index):
+            raise ParameterError(
+                f"got eigenvalues at {eigs_ir.shape[0]} k-points but the mesh has {len(kmesh.ir_index)} irreducible "
+                "points; compute them at kmesh.kfrac"
+            )
+        addr = np.mod(np.asarray(kmesh.grid_address, dtype=int), mesh)
+        flat = np.ravel_multi_index(addr.T, tuple(mesh))
+        if len(np.unique(flat)) != n_full:
+            raise ParameterError(f"k-mesh grid addresses do not cover the {tuple(mesh)} grid once each")
+        # grid point (row-major index) -> irreducible point
+        grid_to_ir = np.empty(n_full, dtype=np.int64)
+        grid_to_ir[flat] = np.asarray(kmesh.mapping, dtype=np.int64)
+        offsets = _tetra_offsets(mesh, reciprocal_A)  # (6, 4, 3)
+        base = np.stack(np.unravel_index(np.arange(n_full), tuple(mesh)), 1)  # (N, 3)
+        corners = np.mod(base[:, None, None, :] + offsets[None], mesh)  # (N, 6, 4, 3)
+        corner_grid = np.ravel_multi_index(np.moveaxis(corners.reshape(-1, 4, 3), -1, 0), tuple(mesh))
+        self.corner_ir = grid_to_ir[corner_grid]  # (T, 4) irreducible index of each tetrahedron corner
+        self.n_tet = len(self.corner_ir)
+        self.n_bands = nb
+        self.n_ir = eigs_ir.shape[0]
+        self.volume = 1.0 / self.n_tet  # volume fraction of one tetrahedron
+        # rows r = t * nb + b; corner energies sorted ascending, and which corner each sorted slot came from
+        e = np.moveaxis(eigs_ir[self.corner_ir], 1, 2).reshape(-1, 4)  # (T*nb, 4)
+        self.order = np.argsort(e, axis=1, kind="stable").astype(np.int8)
+        self.e = np.take_along_axis(e, self.order.astype(np.intp), axis=1)
+        self.emin = float(self.e[:, 0].min())
+        self.emax = float(self.e[:, 3].max())
+        self.eigs_ir = eigs_ir
+
+    def _chunks(self):
+        for s in range(0, len(self.e), _CHUNK_ROWS):
+            yield slice(s, min(s + _CHUNK_ROWS, len(self.e)))
+
+    def count(self, eps: float) -> float:
+        """States per cell (one spin) below eps."""
+        return self.volume * float(sum(_tet_count(self.e[s], eps).sum() for s in self._chunks()))
+
+    def dos(self, eps: float) -> float:
+        """States per eV per cell (one spin) at eps."""
+        return self.volume * float(sum(_tet_dos(self.e[s], eps).sum() for s in self._chunks()))
+
+    def fermi_level(self, n_electrons: float, g: int) -> float:
+        if n_electrons <= 0:
+            return self.emin
+        if n_electrons >= g * self.n_bands:
+            return self.emax
+        mu = _solve_count(lambda m: g * self.count(m), n_electrons, self.emin - 1e-6, self.emax + 1e-6,
+                          "the tetrahedron method")
+        gap, vbm, cbm = _gap(self.eigs_ir, n_electrons, g)
+        if gap > 0:
+            # the linear-tetrahedron count is exactly flat between the band extremes of the mesh
+            mu = 0.5 * (vbm + cbm)
+        return float(mu)
+
+    def occupations(self, eps: float, blochl: bool = True) -> np.ndarray:
+        """(M, nb) one-spin occupation weights folded onto the irreducible points (Σ = count(eps))."""
+        nb = self.n_bands
+        acc = np.zeros(self.n_ir * nb)
+        for s in self._chunks():
+            e = self.e[s]
+            w = _tet_weights(e, eps)
+            if blochl:
+                # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
+                w = w + _tet_dos(e, eps)[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+            rows = np.arange(s.start, s.stop)
+            tet, band = np.divmod(rows, nb)
+            corner = np.take_along_axis(self.corner_ir[tet], self.order[s].astype(np.intp), axis=1)
+            idx = corner * nb + band[:, None]
+            acc += np.bincount(idx.ravel(), weights=w.ravel(), minlength=self.n_ir * nb)
+        return self.volume * acc.reshape(self.n_ir, nb)
+
+    def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):
+        """(ne,) one-spin DOS, (ne,) count and (ne, nproj) projected DOS on an energy grid."""
+        energies = np.asarray(energies, dtype=float)
+        ne, nb = len(energies), self.n_bands
+        order_e = np.argsort(energies)
+        es = energies[order_e]
+        dos = np.zeros(ne)
+        below = np.zeros(ne)
+        nproj = 0 if proj_ir is None else proj_ir.shape[2]
+        pdos = np.zeros((ne, nproj))
+        for s in self._chunks():
+            e = self.e[s]
+            # rows lying wholly below an energy count fully there; the others are evaluated pairwise
+            lo = np.searchsorted(es, e[:, 0], side="right")
+            hi = np.searchsorted(es, e[:, 3], side="left")
+            full_from = np.searchsorted(es, e[:, 3], side="left")
+            below += np.bincount(full_from, minlength=ne + 1)[:ne].cumsum()
+            cnt = np.maximum(hi - lo, 0)
+            if cnt.sum() == 0:
+                continue
+            row = np.repeat(np.arange(len(e)), cnt)
+            start = np.repeat(lo - np.concatenate([[0], np.cumsum(cnt)[:-1]]), cnt)
+            eidx = start + np.arange(len(row))
+            er, x = e[row], es[eidx]
+            dvals = _tet_dos(er, x)
+            dos += np.bincount(eidx, weights=dvals, minlength=ne)
+            below += np.bincount(eidx, weights=_tet_count(er, x), minlength=ne)
+            if nproj:
+                cw = _tet_corner_dos(er, x)  # (p, 4)
+                rows = row + s.start
+                tet, band = np.divmod(rows, nb)
+                corner = np.take_along_axis(self.corner_ir[tet], self.order[rows].astype(np.intp), axis=1)
+                pr = proj_ir[corner, band[:, None], :]  # (p, 4, nproj)
+                contrib = np.einsum("pc,pcj->pj", cw, pr)
+                for j in range(nproj):  # loop over projection channels only
+                    pdos[:, j] += np.bincount(eidx, weights=contrib[:, j], minlength=ne)
+        inv = np.empty(ne, dtype=int)
+        inv[order_e] = np.arange(ne)
+        v = self.volume
+        return v * dos[inv], v * below[inv], v * pdos[inv]
+
+
+# ============================================================================================== integration
+def integrate(eigs_ir_eV, kmesh: IrreducibleMesh, n_electrons, *, method="tetrahedron", width_eV=0.05,
+              spin_degeneracy=2, reciprocal_A=None, mp_order: int = 1, blochl: bool = True) -> BandEnergyResult:
+    """Fermi level and band energy from eigenvalues at the irreducible points of ``kmesh``.
+
+    Parameters
+    ----------
+    eigs_ir_eV : (M, nb) eigenvalues at ``kmesh.kfrac``, eV, ascending along the band axis.
+    kmesh : the irreducible mesh (weights; mapping and grid addresses for the tetrahedron method).
+    n_electrons : electrons per cell, 0 … spin_degeneracy × nb.
+    method : 'tetrahedron' (default), 'gaussian', 'fermi-dirac' or 'methfessel-paxton'.
+    width_eV : smearing width σ, eV (ignored by the tetrahedron method).
+    spin_degeneracy : 2, or 1 when spin–orbit coupling doubles the basis.
+    reciprocal_A : (3, 3) reciprocal vectors as rows (no 2π); picks the shortest main diagonal for the tetrahedra.
+        Without it the (0,0,0)→(1,1,1) diagonal is used.
+    mp_order : order N of the Methfessel–Paxton expansion (default 1).
+    blochl : apply Blöchl's correction to the tetrahedron weights (default True).
+    """
+    method = _norm_method(method)
+    g = _check_spin(spin_degeneracy)
+    width = _check_width(width_eV, method)
+    if int(mp_order) != mp_order or mp_order < 0:
+        raise ParameterError(f"mp_order must be a non-negative integer (1 is usual), got {mp_order!r}")
+    e = _check_eigs(eigs_ir_eV, kmesh.weights)
+    n = _check_n_electrons(n_electrons, e.shape[1], g)
+    w = np.asarray(kmesh.weights, dtype=float)
+    gap, _, _ = _gap(e, n, g)
+    common = dict(n_electrons=n, gap_eV=gap, method=method, mesh=tuple(int(m) for m in kmesh.mesh),
+                  n_kpoints_irreducible=int(e.shape[0]), spin_degeneracy=g, eigenvalues_eV=e, kmesh=kmesh)
+    if method == "tetrahedron":
+        grid = _TetrahedronGrid(e, kmesh, reciprocal_A)
+        mu = grid.fermi_level(n, g)
+        if n >= g * e.shape[1]:
+            occ = g * np.broadcast_to(w[:, None], e.shape).copy()
+        else:
+            occ = g * grid.occupations(mu, blochl=blochl)
+        energy = float(np.sum(occ * e))
+        return BandEnergyResult(fermi_level_eV=mu, band_energy_eV=energy, free_energy_eV=energy, width_eV=0.0,
+                                smeared_energy_eV=energy, occupations=occ, **common)
+    mu = _smeared_fermi_level(e, w, n, method, width, g, mp_order)
+    if n >= g * e.shape[1]:
+        f, s = np.ones_like(e), np.zeros_like(e)
+    elif n <= 0:
+        f, s = np.zeros_like(e), np.zeros_like(e)
+    else:
+        x = (e - mu) / width
+        f, s = occupation(x, method, mp_order), entropy_term(x, method, mp_order)
+    occ = g * w[:, None] * f
+    energy = float(np.sum(occ * e))
+    free = energy - width * g * float(np.sum(w[:, None] * s))
+    # Fermi–Dirac and Gaussian: E(σ) and F(σ) deviate from E(0) by equal and opposite O(σ²) terms, so their mean
+    # is the σ→0 estimate (Gillan, J. Phys.: Condens. Matter 1, 689 (1989)). Methfessel–Paxton's E is already
+    # accurate to high order in σ (Methfessel & Paxton, PRB 40, 3616 (1989)).
+    e0 = energy if method == "methfessel-paxton" else 0.5 * (energy + free)
+    return BandEnergyResult(fermi_level_eV=mu, band_energy_eV=e0, free_energy_eV=free, width_eV=width,
+                            smeared_energy_eV=energy, occupations=occ, **common)
+
+
+def solve_on_mesh(model, mesh=None, *, kspacing_per_A=0.15, method="tetrahedron", width_eV=0.05,
+                  use_symmetry=True, symprec=1e-3, mp_order: int = 1, blochl: bool = True) -> BandEnergyResult:
+    """Band energy of a tight-binding model in one call: mesh → irreducible wedge → eigenvalues → integration.
+
+    ``mesh`` defaults to ``kspace.mesh_from_spacing(model.crystal, kspacing_per_A, model.periodic)``; a given
+    mesh is forced to 1 along directions the model marks non-periodic. Symmetry reduction uses
+    ``symmetry.irreducible_mesh``; the tetrahedra are split along the crystal's shortest reciprocal diagonal.
+    """
+    from .kspace import _check_mesh, mesh_from_spacing
+    from .symmetry import irreducible_mesh
+
+    method = _norm_method(method)
+    periodic = tuple(bool(p) for p in getattr(model, "periodic", (True, True, True)))
+    if mesh is None:
+        mesh = mesh_from_spacing(model.crystal, kspacing_per_A, periodic)
+    else:
+        mesh = tuple(m if p else 1 for m, p in zip(_check_mesh(mesh), periodic, strict=True))
+    kmesh = irreducible_mesh(model.crystal, mesh, symprec=symprec, use_symmetry=use_symmetry)
+    eigs = np.asarray(model.eigenvalues(kmesh.kfrac))
+    return integrate(eigs, kmesh, model.n_electrons, method=method, width_eV=width_eV,
+                     spin_degeneracy=model.spin_degeneracy, reciprocal_A=model.crystal.reciprocal_A,
+                     mp_order=mp_order, blochl=blochl)
+
+
+# ============================================================================================== DOS
+def density_of_states(eigs_ir_eV, kmesh: IrreducibleMesh, energies_eV, *, method="gaussian", width_eV=0.05,
+                      weights_projected=None, spin_degeneracy=2, reciprocal_A=None,
+                      mp_order: int = 1) -> DOSResult:
+    """Total and projected density of states (states per eV per cell, both spins) on an energy grid.
+
+    ``weights_projected`` (M, nb, nproj) holds |ψ|² weights of each irreducible state on each projection
+    (orbital, site, …). With a symmetry-reduced mesh a projection must be invariant under the point group
+    (e.g. summed over an l-shell and over symmetry-equivalent sites); otherwise pass a mesh built with
+    ``use_symmetry=False``.
+    """
+    method = _norm_method(method)
+    g = _check_spin(spin_degeneracy)
+    width = _check_width(width_eV, method)
+    e = _check_eigs(eigs_ir_eV, kmesh.weights)
+    en = np.asarray(energies_eV, dtype=float).reshape(-1)
+    if en.size == 0 or not np.all(np.isfinite(en)):
+        raise ParameterError("energies_eV must be a non-empty array of finite energies in eV")
+    proj = None
+    if weights_projected is not None:
+        proj = np.asarray(weights_projected, dtype=float)
+        if proj.ndim == 2:
+            proj = proj[:, :, None]
+        if proj.ndim != 3 or proj.shape[:2] != e.shape:
+            raise ParameterError(
+                f"weights_projected must have shape (n_kpoints, n_bands, n_proj) = ({e.shape[0]}, {e.shape[1]}, …), "
+                f"got {np.shape(weights_projected)}"
+            )
+    if method == "tetrahedron":
+        grid = _TetrahedronGrid(e, kmesh, reciprocal_A)
+        dos, below, pdos = grid.dos_on_grid(en, proj)
+        width = 0.0
+    else:
+        dos, below, pdos = _smeared_dos(e, np.asarray(kmesh.weights, dtype=float), en, method, width, mp_order,
+                                        proj)
+    return DOSResult(energies_eV=en, dos_per_eV=g * dos, states_below=g * below,
+                     projected_per_eV=None if proj is None else g * pdos, method=method, width_eV=width,
+                     spin_degeneracy=g)
+
+
+def _smeared_dos(e, w, energies, method, sigma, mp_order, proj):
+    """One-spin smeared DOS, count and projected DOS; each line evaluated only inside its window."""
+    ne = len(energies)
+    order_e = np.argsort(energies)
+    es = energies[order_e]
+    states = e.reshape(-1)
+    sw = np.repeat(w, e.shape[1])
+    pr = None if proj is None else proj.reshape(-1, proj.shape[2])
+    half = _WINDOW_SIGMA[method] * sigma
+    dos = np.zeros(ne)
+    below = np.zeros(ne)
+    pdos = np.zeros((ne, 0 if pr is None else pr.shape[1]))
+    for s in range(0, len(states), _CHUNK_ROWS):
+        sl = slice(s, min(s + _CHUNK_ROWS, len(states)))
+        st, ww = states[sl], sw[sl]
+        lo = np.searchsorted(es, st - half, side="left")
+        hi = np.searchsorted(es, st + half, side="right")
+        # beyond the window the line has become a step: count it fully from there on
+        below += np.bincount(hi, weights=ww, minlength=ne + 1)[:ne].cumsum()
+        cnt = hi - lo
+        if cnt.sum() == 0:
+            continue
+        row = np.repeat(np.arange(len(st)), cnt)
+        start = np.repeat(lo - np.concatenate([[0], np.cumsum(cnt)[:-1]]), cnt)
+        eidx = start + np.arange(len(row))
+        x = (st[row] - es[eidx]) / sigma
+        d = ww[row] * delta(x, method, mp_order) / sigma
+        dos += np.bincount(eidx, weights=d, minlength=ne)
+        below += np.bincount(eidx, weights=ww[row] * occupation(x, method, mp_order), minlength=ne)
+        if pr is not None:
+            prow = pr[sl][row]
+            for j in range(pr.shape[1]):  # loop over projection channels only
+                pdos[:, j] += np.bincount(eidx, weights=d * prow[:, j], minlength=ne)
+    inv = np.empty(ne, dtype=int)
+    inv[order_e] = np.arange(ne)
+    return dos[inv], below[inv], pdos[inv]
