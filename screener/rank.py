@@ -50,6 +50,8 @@ class RankResult:
     """Numerical settings used."""
     safety: str
     """Safety line for hazardous elements ('' if none)."""
+    parent_structure: Crystal
+    """The parent structure as screened."""
 
     @property
     def fermi_level_eV(self) -> float:
@@ -173,6 +175,7 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         candidates=tuple(results),
         settings=settings,
         safety=safety_note(crystal),
+        parent_structure=crystal,
     )
 
 
