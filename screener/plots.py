@@ -135,7 +135,8 @@ def plot_bands(path, energies_eV, fermi_level_eV: float, out_png, *, character=N
     x = np.asarray(path.x_inv_A, dtype=float)
     for start, stop in path.segments:
         if stop - start < 2:
-            ax.plot(x[start:stop].repeat(nb), e[start:stop].ravel(), "o", ms=3, color="k")
+            # a lone k-point: short level marks, so a single-point "path" still reads as a level diagram
+            ax.plot(x[start:stop].repeat(nb), e[start:stop].ravel(), "_", ms=40, mew=1.6, color="k")
             continue
         xs = x[start:stop]
         # one straight piece per band and per k-step: (nb, steps, 2 points, xy)
@@ -155,7 +156,10 @@ def plot_bands(path, energies_eV, fermi_level_eV: float, out_png, *, character=N
         span = max(float(e.max() - e.min()), 1e-3)
         lo, hi = float(e.min()) - 0.04 * span, float(e.max()) + 0.04 * span
     ax.set_ylim(lo, hi)
-    ax.set_xlim(x[0], x[-1] if x[-1] > x[0] else x[0] + 1e-3)
+    if x[-1] > x[0]:
+        ax.set_xlim(x[0], x[-1])
+    else:
+        ax.set_xlim(x[0] - 0.5, x[0] + 0.5)
     for t in path.tick_x:
         ax.axvline(t, color="0.75", lw=0.7, zorder=0)
     ax.axhline(0.0, color="0.3", ls="--", lw=1.0, zorder=3)
