@@ -81,7 +81,7 @@ def test_a7_nearest_neighbour_distances():
     long = np.sqrt(a * a / 3 + ((2 / 3 - 2 * z) * c) ** 2)
     assert (short, long) == pytest.approx((2.52, 3.12), abs=0.005)  # ≈2.52 / 3.12 Å, from memory
     for name in ("As_A7_hexagonal.cif", "As_A7_rhombohedral.cif", "As_A7_rhombohedral.vasp"):
-        shells = read_structure(DATA / name).neighbour_shells(cutoff_A=4.5)
+        shells = read_structure(DATA / name).neighbour_shells(cutoff_A=5.0)
         assert [s.distance_A for s in shells[:3]] == pytest.approx([short, long, a], abs=1e-4)
         assert [s.count_per_atom for s in shells[:3]] == [3, 3, 6]
 
@@ -90,7 +90,7 @@ def test_shells_of_cubic_lattices():
     # fcc: 12 at a/√2, 6 at a; diamond: 4 at a√3/4, 12 at a/√2; sc: 6 at a, 12 at a√2
     # (Kittel, Introduction to Solid State Physics, ch. 1, tables of nearest neighbours)
     def first_two(name):
-        shells = read_structure(DATA / name).neighbour_shells(cutoff_A=4.5)
+        shells = read_structure(DATA / name).neighbour_shells(cutoff_A=5.0)
         return np.array([(s.distance_A, s.count_per_atom) for s in shells[:2]])
 
     a = 4.0495
