@@ -61,14 +61,13 @@ def write_optimum_structures(result: RankResult, folder, stem: str = "candidate"
 
 def demo_folder() -> Path:
     """The bundled invented demo structures (installed with the package, or the source tree's folder)."""
-    try:
-        from importlib.resources import files
+    import importlib.util
 
-        p = Path(str(files("screener.demo_structures")))
+    spec = importlib.util.find_spec("screener.demo_structures")
+    for location in (spec.submodule_search_locations or []) if spec else []:
+        p = Path(location)
         if p.is_dir() and any(p.iterdir()):
             return p
-    except (ModuleNotFoundError, TypeError):
-        pass
     return Path(__file__).resolve().parent.parent / "demo_structures"
 
 
