@@ -1,0 +1,348 @@
+"""The tight-binding model: orbital layout, real-space blocks H(R), and H(k) for a stack of k-points.
+
+Gauge: lattice (not atomic-position) gauge, H(k) = Σ_R H_R exp(2πi k·R) with R integer lattice translations and
+k in fractions of the reciprocal vectors (rows of ``Crystal.reciprocal_A``, no 2π). Eigenvalues are therefore
+periodic under k → k + G; eigenvectors differ from the atomic gauge by site phases only.
+
+Which pairs interact (``find_bonds``): for a pair of elements whose bond entry gives ``cutoff_A``, every pair up
+to that length. Otherwise the neighbour-shell rule: the shells of atom i are its neighbour distances grouped from
+the shortest, shell s holding the distances up to (1 + tol)·(shortest distance not in shells < s); a bond i–j is
+kept when j lies in one of the first ``shells`` (default 1) shells of i, or i in those of j. tol =
+``SHELL_TOLERANCE`` = 0.1 (common practice, no source). Each bond is listed once: i < j, or i == j with the first
+non-zero component of the image positive.
+"""
+
+from __future__ import annotations
+
+from collections import defaultdict
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import ParameterError, StructureError
+from .params import ParameterSet, default_parameters
+from .slater_koster import angular_momentum_matrices, orbital_indices, reverse_parameters, sk_block
+from .structure import Crystal, find_neighbours
+
+#: Relative tolerance grouping neighbour distances into one shell (common practice, no source).
+SHELL_TOLERANCE = 0.1
+#: Memory target for one chunk of complex H(k) matrices, bytes.
+CHUNK_BYTES = 256 * 2**20
+#: Longest neighbour search when looking for higher shells, Å.
+MAX_SEARCH_A = 30.0
+
+
+@dataclass(frozen=True)
+class BondList:
+    """Interacting pairs. Each bond once: i < j, or i == j with the first non-zero image component positive.
+
+    The bond vector in lattice coordinates is ``frac[j] + image − frac[i]``.
+    """
+
+    i: np.ndarray
+    """(p,) int, first atom."""
+    j: np.ndarray
+    """(p,) int, second atom."""
+    image: np.ndarray
+    """(p, 3) int, lattice translation added to atom j."""
+    vector_frac: np.ndarray | None = None
+    """(p, 3) float, bond vectors (lattice coordinates) when the list was found; used by build_model to re-anchor
+    images of atoms that wrapped across the cell boundary. None: images are taken as given."""
+
+    def __post_init__(self):
+        i = np.asarray(self.i, dtype=int).reshape(-1)
+        j = np.asarray(self.j, dtype=int).reshape(-1)
+        img = np.asarray(self.image, dtype=int).reshape(-1, 3)
+        if not (len(i) == len(j) == len(img)):
+            raise StructureError(f"bond list arrays disagree in length: i {len(i)}, j {len(j)}, image {len(img)}")
+        object.__setattr__(self, "i", i)
+        object.__setattr__(self, "j", j)
+        object.__setattr__(self, "image", img)
+        if self.vector_frac is not None:
+            v = np.asarray(self.vector_frac, dtype=float).reshape(-1, 3)
+            if len(v) != len(i):
+                raise StructureError(f"bond list vector_frac has {len(v)} rows for {len(i)} bonds")
+            object.__setattr__(self, "vector_frac", v)
+
+    def __len__(self) -> int:
+        return len(self.i)
+
+
+def _canonical(i, j, image) -> np.ndarray:
+    """Mask selecting one direction of each bond listed in both directions."""
+    idx = np.argmax(image != 0, axis=1)
+    first = image[np.arange(len(i)), idx]
+    return (i < j) | ((i == j) & (first > 0))
+
+
+def _bond_rule(params: ParameterSet, a: str, b: str) -> tuple[float | None, int]:
+    """(cutoff_A, shells) for a pair without building its hoppings (which may legitimately raise)."""
+    bp = params.bond_params.get(tuple(sorted((a, b))))
+    if bp is None:
+        return None, 1
+    return bp.cutoff_A, bp.shells
+
+
+def find_bonds(crystal: Crystal, params: ParameterSet | None = None, *,
+               shell_tolerance: float = SHELL_TOLERANCE) -> BondList:
+    """Pairs that interact under the parameter rules (see module docstring), each listed once."""
+    if params is None:
+        params = default_parameters(set(crystal.species))
+    species = crystal.species
+    elements = sorted(set(species))
+    rules = {(a, b): _bond_rule(params, a, b) for a in elements for b in elements}
+    cutoffs = [c for c, _ in rules.values() if c is not None]
+    shells_needed = max((s for c, s in rules.values() if c is None), default=0)
+    dmin = crystal._shortest_contact()[0]
+    radius = max(cutoffs + [dmin * (1 + shell_tolerance) * 1.5])
+    n = crystal.n_atoms
+    while True:
+        nl = find_neighbours(crystal.lattice_A, crystal.frac, radius)
+        bound = np.zeros(n)
+        closed = True
+        for _ in range(shells_needed):
+            rest = nl.distance_A > bound[nl.i] + 1e-9
+            nearest = np.full(n, np.inf)
+            np.minimum.at(nearest, nl.i[rest], nl.distance_A[rest])
+            # a shell is only known to be complete when its upper edge lies inside the search sphere
+            if np.any(~np.isfinite(nearest)) or np.any(nearest * (1 + shell_tolerance) >= radius):
+                closed = False
+                break
+            bound = nearest * (1 + shell_tolerance)
+        if closed or radius >= MAX_SEARCH_A:
+            break
+        radius = min(radius * 1.6, MAX_SEARCH_A)
+
+    si = np.array([elements.index(s) for s in species])
+    keep = np.zeros(len(nl.i), dtype=bool)
+    for (a, b), (cutoff, nshell) in rules.items():
+        sel = (si[nl.i] == elements.index(a)) & (si[nl.j] == elements.index(b))
+        if cutoff is not None:
+            keep |= sel & (nl.distance_A <= cutoff + 1e-9)
+    # shell rule for pair types without a cutoff; recompute the bound per shell count in use
+    for nshell in sorted({s for c, s in rules.values() if c is None}):
+        bound = np.zeros(n)
+        for _ in range(nshell):
+            rest = nl.distance_A > bound[nl.i] + 1e-9
+            nearest = np.full(n, np.inf)
+            np.minimum.at(nearest, nl.i[rest], nl.distance_A[rest])
+            bound = np.where(np.isfinite(nearest), nearest * (1 + shell_tolerance), bound)
+        in_shell = (nl.distance_A <= bound[nl.i] + 1e-9) | (nl.distance_A <= bound[nl.j] + 1e-9)
+        for (a, b), (cutoff, s) in rules.items():
+            if cutoff is None and s == nshell:
+                sel = (si[nl.i] == elements.index(a)) & (si[nl.j] == elements.index(b))
+                keep |= sel & in_shell
+    i, j, image = nl.i[keep], nl.j[keep], nl.image[keep]
+    once = _canonical(i, j, image)
+    i, j, image = i[once], j[once], image[once]
+    vec = crystal.frac[j] + image - crystal.frac[i]
+    return BondList(i, j, image, vec)
+
+
+# ---------------------------------------------------------------------------------------------- model
+@dataclass(frozen=True, eq=False)
+class TightBindingModel:
+    """A Slater–Koster tight-binding Hamiltonian of one crystal. Build with ``build_model``."""
+
+    crystal: Crystal
+    """The structure (current geometry)."""
+    params: ParameterSet
+    """Parameters used."""
+    bonds: BondList
+    """Interacting pairs, each once (images re-anchored to the current geometry)."""
+    orbital_site: np.ndarray
+    """(norb,) int, atom index of each basis orbital."""
+    orbital_name: tuple[str, ...]
+    """Orbital name per basis function ('px', or 'px_up'/'px_dn' with spin–orbit)."""
+    n_electrons: float
+    """Valence electrons per cell."""
+    spin_degeneracy: int
+    """2, or 1 when spin–orbit coupling doubles the basis."""
+    periodic: tuple[bool, bool, bool]
+    """False along a lattice vector that no bond crosses (vacuum, isolated chains or layers)."""
+    translations: np.ndarray
+    """(nR, 3) int, lattice translations R with a non-zero block; R = 0 first."""
+    hopping_eV: np.ndarray
+    """(nR, norb, norb) H_R blocks, eV: H_R[a, b] = <a in cell 0 | H | b in cell R>; real unless spin–orbit."""
+    bond_length_A: np.ndarray
+    """(p,) float, length of each bond in ``bonds``, Å."""
+    _h0: np.ndarray = field(repr=False)
+    _rhalf: np.ndarray = field(repr=False)
+    _sym: np.ndarray = field(repr=False)
+    _anti: np.ndarray = field(repr=False)
+
+    @property
+    def n_orbitals(self) -> int:
+        """Size of the basis."""
+        return len(self.orbital_site)
+
+    def _default_chunk(self) -> int:
+        return max(1, int(CHUNK_BYTES // (16 * max(1, self.n_orbitals) ** 2 * 3)))
+
+    def hamiltonian(self, kfrac) -> np.ndarray:
+        """(nk, norb, norb) complex Hermitian H(k) for k in fractions of the reciprocal vectors (nk, 3)."""
+        k = _as_kpoints(kfrac)
+        norb = self.n_orbitals
+        nk = len(k)
+        out = np.empty((nk, norb * norb), dtype=complex)
+        if len(self._rhalf):
+            phase = (2 * np.pi) * (k @ self._rhalf.T)  # (nk, nR+)
+            c, s = np.cos(phase), np.sin(phase)
+            # H(k) = H0 + Σ_{R+} cos(φ)(H_R + H_R†) + i sin(φ)(H_R − H_R†)
+            if np.iscomplexobj(self._sym):
+                out[:] = self._h0 + c @ self._sym + 1j * (s @ self._anti)
+            else:
+                out.real = self._h0.real + c @ self._sym
+                out.imag = self._h0.imag + s @ self._anti
+        else:
+            out[:] = self._h0
+        return out.reshape(nk, norb, norb)
+
+    def eigenvalues(self, kfrac, chunk_size: int | None = None) -> np.ndarray:
+        """(nk, norb) band energies in eV, ascending, diagonalised in chunks of ``chunk_size`` k-points."""
+        k = _as_kpoints(kfrac)
+        step = chunk_size or self._default_chunk()
+        out = np.empty((len(k), self.n_orbitals))
+        for start in range(0, len(k), step):
+            out[start:start + step] = np.linalg.eigvalsh(self.hamiltonian(k[start:start + step]))
+        return out
+
+    def eigensystem(self, kfrac, chunk_size: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """Eigenvalues (nk, norb) and eigenvectors (nk, norb, norb), eigenvectors as columns."""
+        k = _as_kpoints(kfrac)
+        step = chunk_size or self._default_chunk()
+        vals = np.empty((len(k), self.n_orbitals))
+        vecs = np.empty((len(k), self.n_orbitals, self.n_orbitals), dtype=complex)
+        for start in range(0, len(k), step):
+            w, v = np.linalg.eigh(self.hamiltonian(k[start:start + step]))
+            vals[start:start + step] = w
+            vecs[start:start + step] = v
+        return vals, vecs
+
+
+def _as_kpoints(kfrac) -> np.ndarray:
+    k = np.asarray(kfrac, dtype=float)
+    if k.ndim == 1:
+        k = k[None, :]
+    if k.ndim != 2 or k.shape[1] != 3:
+        raise ParameterError(f"k-points must be an (nk, 3) array of fractions of the reciprocal vectors, "
+                             f"got shape {np.shape(kfrac)}")
+    return k
+
+
+def build_model(crystal: Crystal, params: ParameterSet | None = None, *, bonds: BondList | None = None
+                ) -> TightBindingModel:
+    """Tight-binding model of ``crystal``.
+
+    ``params`` defaults to ``default_parameters`` of the crystal's elements. ``bonds`` (same atom indices) fixes
+    which pairs interact — hoppings are evaluated at the *current* bond lengths, so a distortion family keeps its
+    parent's bonds while atoms move. When the bond list carries ``vector_frac``, images are re-anchored so that
+    atoms wrapped back into the cell keep their bonds.
+    """
+    if params is None:
+        params = default_parameters(set(crystal.species))
+    if bonds is None:
+        bonds = find_bonds(crystal, params)
+    n = crystal.n_atoms
+    if len(bonds) and (bonds.i.min() < 0 or bonds.j.min() < 0 or max(bonds.i.max(), bonds.j.max()) >= n):
+        raise StructureError(f"bond list refers to atoms outside 0..{n - 1}; was it found for another structure?")
+    image = bonds.image
+    vec_frac = crystal.frac[bonds.j] + image - crystal.frac[bonds.i]
+    if bonds.vector_frac is not None and len(bonds):
+        shift = np.rint(bonds.vector_frac - vec_frac).astype(int)
+        if np.any(shift):
+            image = image + shift
+            vec_frac = vec_frac + shift
+    bonds = BondList(bonds.i, bonds.j, image, bonds.vector_frac)
+
+    # orbital layout
+    sp = [params.species(s) for s in crystal.species]
+    soc = any(s.soc_eV != 0 for s in sp)
+    spin = 2 if soc else 1
+    counts = np.array([len(s.orbitals) for s in sp])
+    offset = np.concatenate([[0], np.cumsum(counts)])[:-1]
+    norb = int(counts.sum())
+    site = np.repeat(np.arange(n), counts)
+    names = tuple(o for s in sp for o in s.orbitals)
+    n_electrons = float(sum(s.valence_electrons for s in sp))
+
+    # R = 0 block: on-site energies
+    translations = [np.zeros(3, dtype=int)]
+    if len(bonds):
+        uniq = np.unique(np.concatenate([image, -image]), axis=0)
+        translations += [r for r in uniq if np.any(r)]
+    translations = np.array(translations, dtype=int).reshape(-1, 3)
+    index = {tuple(r): a for a, r in enumerate(translations)}
+    HR = np.zeros((len(translations), norb, norb))
+    HR[0, np.arange(norb), np.arange(norb)] = [s.onsite_eV[o] for s in sp for o in s.orbitals]
+
+    # hoppings, grouped by ordered species pair so that each group shares one orbital layout
+    cart = vec_frac @ crystal.lattice_A
+    dist = np.linalg.norm(cart, axis=1)
+    if len(bonds) and dist.min() < 1e-6:
+        raise StructureError("a bond has zero length in this geometry; atoms coincide")
+    groups = defaultdict(list)
+    for b, (ia, ja) in enumerate(zip(bonds.i, bonds.j, strict=True)):
+        groups[(crystal.species[ia], crystal.species[ja])].append(b)
+    ridx = np.array([index[tuple(r)] for r in image], dtype=int) if len(bonds) else np.zeros(0, int)
+    rneg = np.array([index[tuple(-r)] for r in image], dtype=int) if len(bonds) else np.zeros(0, int)
+    for (a, b), members in groups.items():
+        m = np.array(members)
+        bp = params.bond(a, b)
+        hop = bp.hoppings(dist[m])
+        if bp.pair[0] != a:
+            hop = reverse_parameters(hop)
+        oa, ob = params.species(a).orbitals, params.species(b).orbitals
+        blocks = sk_block(cart[m], oa, ob, hop)  # (p, na, nb)
+        rows = offset[bonds.i[m]][:, None] + np.arange(len(oa))[None, :]
+        cols = offset[bonds.j[m]][:, None] + np.arange(len(ob))[None, :]
+        np.add.at(HR, (ridx[m][:, None, None], rows[:, :, None], cols[:, None, :]), blocks)
+        np.add.at(HR, (rneg[m][:, None, None], cols[:, :, None], rows[:, None, :]), np.swapaxes(blocks, 1, 2))
+
+    if soc:
+        HR, names, site = _add_spin_orbit(HR, sp, offset, names, site)
+        norb *= 2
+
+    periodic = tuple(bool(x) for x in np.any(image != 0, axis=0)) if len(bonds) else (False, False, False)
+    # pair +R with −R: keep R = 0 and one of each pair
+    half = [a for a, r in enumerate(translations) if a > 0 and _canonical(np.array([1]), np.array([1]), r[None])[0]]
+    half = np.array(half, dtype=int)
+    flat = HR.reshape(len(translations), -1)
+    HRT = np.conj(np.swapaxes(HR, 1, 2)).reshape(len(translations), -1)
+    h0 = flat[0].astype(complex)
+    rhalf = translations[half].astype(float)
+    sym = flat[half] + HRT[half]
+    anti = flat[half] - HRT[half]
+    if not np.iscomplexobj(HR):
+        sym, anti = sym.real, anti.real
+    for arr in (HR, translations, h0, rhalf, sym, anti, dist):
+        arr.setflags(write=False)
+    return TightBindingModel(
+        crystal=crystal, params=params, bonds=bonds, orbital_site=site, orbital_name=names,
+        n_electrons=n_electrons, spin_degeneracy=2 if spin == 1 else 1, periodic=periodic,
+        translations=translations, hopping_eV=HR, bond_length_A=dist,
+        _h0=h0, _rhalf=rhalf, _sym=sym, _anti=anti,
+    )
+
+
+def _add_spin_orbit(HR, sp, offset, names, site):
+    """Double the basis (spin innermost: a_up, a_dn, b_up, ...) and add λ L·S on every atom with λ ≠ 0."""
+    nR, norb, _ = HR.shape
+    out = np.zeros((nR, 2 * norb, 2 * norb), dtype=complex)
+    eye2 = np.eye(2)
+    for r in range(nR):
+        out[r] = np.kron(HR[r], eye2)
+    L = angular_momentum_matrices()
+    pauli = np.array([[[0, 1], [1, 0]], [[0, -1j], [1j, 0]], [[1, 0], [0, -1]]], dtype=complex)
+    for atom, s in enumerate(sp):
+        if s.soc_eV == 0:
+            continue
+        idx = orbital_indices(s.orbitals)
+        # λ L·S with S = σ/2; L projected on the orbitals present
+        block = 0.5 * s.soc_eV * sum(np.kron(L[k][np.ix_(idx, idx)], pauli[k]) for k in range(3))
+        lo = 2 * offset[atom]
+        hi = lo + 2 * len(idx)
+        out[0, lo:hi, lo:hi] += block
+    names2 = tuple(f"{o}_{sfx}" for o in names for sfx in ("up", "dn"))
+    site2 = np.repeat(site, 2)
+    return out, names2, site2
