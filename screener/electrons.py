@@ -428,12 +428,12 @@ def _tet_corner_dos(e, eps):
     c3 = (e3 < eps) & (eps < e4)
     if c1.any():
         a = e[c1]
-        t = (eps[c1] - a[:, :1]) / (a[:, 1:] - a[:, :1])  # positions along edges 1→2, 1→3, 1→4
+        t = (eps[c1][:, None] - a[:, :1]) / (a[:, 1:] - a[:, :1])  # positions along edges 1→2, 1→3, 1→4
         lam = np.concatenate([(3 - t.sum(1, keepdims=True)), t], 1) / 3
         out[c1] = dos[c1, None] * lam
     if c3.any():
         a = e[c3]
-        t = (a[:, 3:] - eps[c3]) / (a[:, 3:] - a[:, :3])  # positions along edges 4→1, 4→2, 4→3
+        t = (a[:, 3:] - eps[c3][:, None]) / (a[:, 3:] - a[:, :3])  # positions along edges 4→1, 4→2, 4→3
         lam = np.concatenate([t, (3 - t.sum(1, keepdims=True))], 1) / 3
         out[c3] = dos[c3, None] * lam
     if c2.any():
