@@ -163,8 +163,18 @@ def special_points(crystal: Crystal, symprec: float = 1e-3):
     points = {}
     for label, f in pts.items():
         k_cart = np.asarray(f, dtype=float) @ rec_prim  # without 2π on both sides, so it cancels
-        points[label] = k_cart @ crystal.lattice_A.T
+        points[label] = _snap(k_cart @ crystal.lattice_A.T)
     return lattice_type, points, path
+
+
+def _snap(f: np.ndarray, denominator: int = 48, tol: float = 1e-10) -> np.ndarray:
+    """Round fractions lying within ``tol`` of a multiple of 1/denominator (and turn -0.0 into 0.0).
+
+    The cell transformations leave 1e-16-sized noise on exact values such as 1/2 or 3/8; snapping keeps printed
+    coordinates and exact comparisons clean while leaving irrational values (η, ν) alone.
+    """
+    r = np.round(f * denominator) / denominator
+    return np.where(np.abs(f - r) < tol, r, f) + 0.0
 
 
 def _tabulated(family: str, centring: str, conv: np.ndarray, a: float, b: float, c: float):
