@@ -1,0 +1,303 @@
+"""Occupations, Fermi level, band energy and DOS checked against analytic tight-binding results.
+
+The models here are analytic nearest-neighbour s bands (one orbital per site) with the interface of
+``screener.model.TightBindingModel`` that ``solve_on_mesh`` uses.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from screener.electrons import (
+    METHODS,
+    _tet_corner_dos,
+    _tet_count,
+    _tet_weights,
+    delta,
+    density_of_states,
+    entropy_term,
+    find_fermi_level,
+    integrate,
+    occupation,
+    solve_on_mesh,
+)
+from screener.errors import ParameterError
+from screener.structure import Crystal
+from screener.symmetry import irreducible_mesh
+
+SEED = 20240611  # fixed, overridable seed for the random checks
+
+
+class AnalyticSBand:
+    """E(k) = ε + Σ_n 2 V_n cos(2π k·n) over neighbour vectors n (lattice coordinates), one s orbital per site."""
+
+    def __init__(self, lattice_A, neighbours, hoppings_eV, onsite_eV=0.0, n_electrons=1.0,
+                 periodic=(True, True, True), species="Po"):
+        self.crystal = Crystal(np.asarray(lattice_A, float), [[0.0, 0.0, 0.0]], [species])
+        self.n = np.asarray(neighbours, dtype=float)
+        self.v = np.asarray(hoppings_eV, dtype=float)
+        self.onsite = float(onsite_eV)
+        self.n_electrons = float(n_electrons)
+        self.spin_degeneracy = 2
+        self.periodic = tuple(periodic)
+
+    def eigenvalues(self, kfrac, chunk_size=None):
+        k = np.asarray(kfrac, dtype=float)
+        return (self.onsite + 2 * np.cos(2 * np.pi * k @ self.n.T) @ self.v)[:, None]
+
+
+def simple_cubic(onsite_eV=0.3, V_eV=-1.0, n_electrons=1.0):
+    # s band of the simple-cubic lattice, E = ε + 2V(cos 2πk1 + cos 2πk2 + cos 2πk3)
+    # Ashcroft & Mermin, Solid State Physics (1976), ch. 10, eq. 10.23 (from memory)
+    return AnalyticSBand(np.eye(3) * 3.0, np.eye(3), [V_eV] * 3, onsite_eV, n_electrons)
+
+
+def chain(t_eV=-1.3):
+    return AnalyticSBand(np.diag([2.5, 15.0, 15.0]), [[1, 0, 0]], [t_eV], 0.0, 1.0, (True, False, False), "Li")
+
+
+class SSHChain:
+    """Two sites per cell with alternating hoppings t1, t2: E = ±|t1 + t2 e^{2πik}|."""
+
+    # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): gap 2|t1 − t2| at the zone boundary
+
+    def __init__(self, t1=-1.2, t2=-0.8):
+        self.crystal = Crystal(np.diag([5.0, 15.0, 15.0]), [[0, 0, 0], [0.48, 0, 0]], ["C", "C"])
+        self.t1, self.t2 = t1, t2
+        self.n_electrons = 2.0
+        self.spin_degeneracy = 2
+        self.periodic = (True, False, False)
+
+    def eigenvalues(self, kfrac, chunk_size=None):
+        k = np.asarray(kfrac, dtype=float)[:, 0]
+        a = np.abs(self.t1 + self.t2 * np.exp(2j * np.pi * k))
+        return np.stack([-a, a], axis=1)
+
+
+# ============================================================================================ occupations
+@pytest.mark.parametrize("method", ["gaussian", "fermi-dirac", "methfessel-paxton"])
+def test_smearing_sum_rules(method):
+    x = np.linspace(-60, 60, 240001)
+    dx = x[1] - x[0]
+    d = delta(x, method)
+    # a broadened δ integrates to one and is the derivative of the step
+    # Methfessel & Paxton, PRB 40, 3616 (1989), eqs. 5–11
+    assert np.sum(d) * dx == pytest.approx(1.0, abs=1e-9)
+    f = occupation(x, method)
+    assert np.allclose(-np.gradient(f, dx), d, atol=1e-6)
+    # particle–hole symmetry of the step: f(x) + f(−x) = 1
+    assert np.allclose(f + occupation(-x, method), 1.0, atol=1e-13)
+    # generalised entropy: ds/dx = −x δ(x), which makes F = E − σS variational
+    # Mermin, Phys. Rev. 137, A1441 (1965); Methfessel & Paxton, PRB 40, 3616 (1989)
+    s = entropy_term(x, method)
+    assert np.allclose(np.gradient(s, dx), -x * d, atol=1e-6)
+
+
+def test_methfessel_paxton_second_moment_vanishes():
+    # order-N MP integrates polynomials up to degree 2N+1 exactly: ∫x²δ₁ = 0, whereas ∫x²δ_Gauss = 1/2
+    # Methfessel & Paxton, PRB 40, 3616 (1989), sec. II
+    x = np.linspace(-40, 40, 160001)
+    dx = x[1] - x[0]
+    assert np.sum(x**2 * delta(x, "methfessel-paxton", mp_order=1)) * dx == pytest.approx(0.0, abs=1e-10)
+    assert np.sum(x**4 * delta(x, "methfessel-paxton", mp_order=2)) * dx == pytest.approx(0.0, abs=1e-9)
+    assert np.sum(x**2 * delta(x, "gaussian")) * dx == pytest.approx(0.5, abs=1e-10)
+
+
+def test_tetrahedron_corner_weights_match_direct_integration():
+    # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), App. B: w_i = ∫_T λ_i(k) θ(ε_F − ε(k)) d³k / V_T
+    rng = np.random.default_rng(SEED)
+    lam = rng.dirichlet(np.ones(4), size=400_000)  # uniform points in a tetrahedron, barycentric
+    e = np.sort(rng.normal(size=(3, 4)), axis=1)
+    eps = np.array([e[0, 0] + 0.4 * (e[0, 1] - e[0, 0]), 0.5 * (e[1, 1] + e[1, 2]), e[2, 2] + 0.5 * (e[2, 3] - e[2, 2])])
+    for row, ef in zip(e, eps, strict=True):
+        occ = (lam @ row) < ef
+        assert _tet_count(row[None], ef)[0] == pytest.approx(occ.mean(), abs=3e-3)
+        assert np.allclose(_tet_weights(row[None], ef)[0], (lam * occ[:, None]).mean(0), atol=2e-3)
+        # corner DOS is the energy derivative of the corner weights
+        h = 1e-6
+        num = (_tet_weights(row[None], ef + h) - _tet_weights(row[None], ef - h))[0] / (2 * h)
+        assert np.allclose(_tet_corner_dos(row[None], ef)[0], num, atol=1e-7)
+
+
+# ============================================================================================ Fermi level
+@pytest.mark.parametrize("method", METHODS)
+def test_half_filled_simple_cubic_fermi_level_at_onsite(method):
+    # particle–hole symmetry of a nearest-neighbour band on the bipartite sc lattice: E_F = ε_s at half filling
+    # Ashcroft & Mermin, Solid State Physics (1976), ch. 10 (dispersion); symmetry argument, no further source
+    r = solve_on_mesh(simple_cubic(onsite_eV=0.3), mesh=(12, 12, 12), method=method, width_eV=0.1)
+    assert r.fermi_level_eV == pytest.approx(0.3, abs=1e-9)
+    assert r.gap_eV == 0.0
+    assert np.sum(r.occupations) == pytest.approx(1.0, abs=1e-9)
+
+
+def test_find_fermi_level_two_levels():
+    # two flat levels −1 and +1 eV, one electron per cell: symmetric, E_F = 0 (common practice, no source)
+    eigs = np.array([[-1.0, 1.0]])
+    assert find_fermi_level(eigs, [1.0], 2.0, "gaussian", 0.1) == pytest.approx(0.0, abs=1e-9)
+    assert find_fermi_level(eigs, [1.0], 2.0, "fermi-dirac", 0.1) == pytest.approx(0.0, abs=1e-9)
+
+
+# ============================================================================================ band energies
+def test_chain_half_filled_band_energy():
+    # E = 2t cos 2πk; at half filling (E_F = 0) the occupied states are |k| < 1/4 for t < 0:
+    # E_band = 2 ∫_{−1/4}^{1/4} 2t cos(2πk) dk = 4t/π = −4|t|/π per site, both spins
+    # (textbook nearest-neighbour chain; Ashcroft & Mermin (1976), ch. 10, derived here)
+    m = chain(t_eV=-1.3)
+    exact = -4 * 1.3 / np.pi
+    r = solve_on_mesh(m, mesh=(256, 5, 5))  # the non-periodic directions are forced to a single point
+    assert r.mesh == (256, 1, 1)
+    assert r.fermi_level_eV == pytest.approx(0.0, abs=1e-9)
+    assert r.band_energy_eV == pytest.approx(exact, abs=2e-5)
+    g = solve_on_mesh(m, mesh=(2000, 1, 1), method="methfessel-paxton", width_eV=0.05)
+    assert g.band_energy_eV == pytest.approx(exact, abs=2e-4)
+
+
+def test_square_lattice_half_filled_band_energy():
+    # 2-D square lattice, E = 2t(cos 2πk1 + cos 2πk2): the half-filled Fermi surface is the diamond |k1|+|k2| = 1/2
+    # and E_band = −16|t|/π² per site, both spins (∫_diamond cos = 8 in units k ∈ [−π, π]²; derived here)
+    t = -0.7
+    m = AnalyticSBand(np.diag([3.0, 3.0, 12.0]), [[1, 0, 0], [0, 1, 0]], [t, t], 0.0, 1.0, (True, True, False))
+    r = solve_on_mesh(m, mesh=(64, 64, 64))
+    assert r.mesh == (64, 64, 1)
+    assert r.band_energy_eV == pytest.approx(-16 * abs(t) / np.pi**2, abs=2e-4)
+
+
+def test_tetrahedron_agrees_with_dense_smearing_in_a_metal():
+    # s band of the sc lattice at a non-symmetric filling (0.6 electrons): the tetrahedron result on 32³ and the
+    # σ→0 Gaussian estimate on a denser mesh are two routes to the same integral (common practice, no source)
+    m = simple_cubic(n_electrons=0.6)
+    tet = solve_on_mesh(m, mesh=(32, 32, 32), method="tetrahedron")
+    gau = solve_on_mesh(m, mesh=(48, 48, 48), method="gaussian", width_eV=0.1)
+    mp = solve_on_mesh(m, mesh=(48, 48, 48), method="methfessel-paxton", width_eV=0.1)
+    assert tet.band_energy_eV == pytest.approx(gau.band_energy_eV, abs=1e-4)
+    assert tet.band_energy_eV == pytest.approx(mp.band_energy_eV, abs=1e-4)
+    # E_F converges more slowly than E (which is stationary in μ): both lie within ~5 meV of the limit here,
+    # from opposite sides
+    assert tet.fermi_level_eV == pytest.approx(mp.fermi_level_eV, abs=1e-2)
+
+
+@pytest.mark.parametrize("method", ["gaussian", "fermi-dirac"])
+def test_sigma_to_zero_estimate_beats_raw_smeared_energy(method):
+    # E(σ→0) ≈ (E + F)/2 for Fermi–Dirac and Gaussian smearing
+    # Gillan, J. Phys.: Condens. Matter 1, 689 (1989); Kresse & Furthmüller, Comput. Mater. Sci. 6, 15 (1996)
+    m = simple_cubic(n_electrons=0.6)
+    ref = solve_on_mesh(m, mesh=(32, 32, 32), method="tetrahedron").band_energy_eV
+    r = solve_on_mesh(m, mesh=(32, 32, 32), method=method, width_eV=0.2)
+    assert r.free_energy_eV < r.smeared_energy_eV  # −σS ≤ 0
+    assert abs(r.band_energy_eV - ref) < 0.2 * abs(r.smeared_energy_eV - ref)
+
+
+def test_ssh_insulator_gap_and_midgap_fermi_level():
+    # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): E = ±|t1 + t2 e^{ik}|, gap 2|t1 − t2| at the zone boundary
+    m = SSHChain(t1=-1.2, t2=-0.8)
+    for method in METHODS:
+        r = solve_on_mesh(m, mesh=(40, 1, 1), method=method, width_eV=0.02)
+        assert r.gap_eV == pytest.approx(2 * 0.4, abs=1e-12)
+        assert r.fermi_level_eV == pytest.approx(0.0, abs=1e-9)
+    # band energy: Σ over the lower band, both spins, = −2⟨|t1 + t2 e^{ik}|⟩ (trapezoid rule on a periodic
+    # integrand of a gapped band converges exponentially; common practice, no source)
+    k = np.arange(4000) / 4000
+    exact = -2 * np.mean(np.abs(-1.2 - 0.8 * np.exp(2j * np.pi * k)))
+    assert solve_on_mesh(m, mesh=(400, 1, 1)).band_energy_eV == pytest.approx(exact, abs=1e-5)
+
+
+def test_symmetry_reduction_changes_nothing():
+    # the irreducible wedge with spglib weights must reproduce the full-mesh sums (spglib get_ir_reciprocal_mesh)
+    hexagonal = np.array([[3.0, 0, 0], [-1.5, 1.5 * np.sqrt(3), 0], [0, 0, 4.0]])
+    models = [
+        simple_cubic(n_electrons=0.7),
+        # triangular layers stacked along c: neighbours a1, a2, a1+a2 in-plane and c out of plane
+        AnalyticSBand(hexagonal, [[1, 0, 0], [0, 1, 0], [1, 1, 0], [0, 0, 1]], [-1.0, -1.0, -1.0, -0.3], 0.0, 0.8),
+    ]
+    for m in models:
+        for method in ("tetrahedron", "methfessel-paxton"):
+            a = solve_on_mesh(m, mesh=(9, 9, 6), method=method, use_symmetry=True)
+            b = solve_on_mesh(m, mesh=(9, 9, 6), method=method, use_symmetry=False)
+            assert a.n_kpoints_irreducible < b.n_kpoints_irreducible
+            assert a.band_energy_eV == pytest.approx(b.band_energy_eV, abs=1e-9)
+            assert a.fermi_level_eV == pytest.approx(b.fermi_level_eV, abs=1e-9)
+
+
+def test_full_and_empty_bands():
+    # boundary fillings: nothing or everything occupied (common practice, no source)
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, (6, 6, 6))
+    e = m.eigenvalues(kmesh.kfrac)
+    for method in METHODS:
+        full = integrate(e, kmesh, 2.0, method=method)
+        assert full.band_energy_eV == pytest.approx(2 * 0.3, abs=1e-12)  # 2 × average band energy = 2ε
+        empty = integrate(e, kmesh, 0.0, method=method)
+        assert empty.band_energy_eV == 0.0
+
+
+# ============================================================================================ DOS
+def test_simple_cubic_dos_edges_and_state_count():
+    # band edges at ε ± 6|V| (Slater & Koster, Phys. Rev. 94, 1498 (1954): sc s band, from memory) and
+    # 2 states per orbital with spin
+    m = simple_cubic(onsite_eV=0.3, V_eV=-1.0)
+    kmesh = irreducible_mesh(m.crystal, (16, 16, 16))
+    e = m.eigenvalues(kmesh.kfrac)
+    grid = np.linspace(-7.0, 7.6, 1461)
+    d = density_of_states(e, kmesh, grid, method="tetrahedron", reciprocal_A=m.crystal.reciprocal_A)
+    assert np.trapezoid(d.dos_per_eV, grid) == pytest.approx(2.0, abs=1e-6)
+    assert d.states_below[-1] == pytest.approx(2.0, abs=1e-12)
+    occupied = grid[d.dos_per_eV > 0]
+    assert occupied.min() == pytest.approx(0.3 - 6.0, abs=0.011)
+    assert occupied.max() == pytest.approx(0.3 + 6.0, abs=0.011)
+    g = density_of_states(e, kmesh, grid, method="gaussian", width_eV=0.1)
+    assert np.trapezoid(g.dos_per_eV, grid) == pytest.approx(2.0, abs=1e-6)
+    assert g.states_below[-1] == pytest.approx(2.0, abs=1e-9)
+
+
+def test_chain_dos_against_analytic():
+    # chain E = 2t cos 2πk: D(E) = 2 / (π √(4t² − E²)) per site, both spins (derived from the dispersion)
+    t = -1.0
+    m = chain(t_eV=t)
+    kmesh = irreducible_mesh(m.crystal, (4000, 1, 1))
+    e = m.eigenvalues(kmesh.kfrac)
+    energies = np.linspace(-1.5, 1.5, 31)
+    exact = 2 / (np.pi * np.sqrt(4 * t**2 - energies**2))
+    d = density_of_states(e, kmesh, energies, method="tetrahedron")
+    # linear interpolation makes the DOS constant on each k-segment: relative error ≲ (D'/D)·ΔE_segment ≈ 2e-3
+    assert np.allclose(d.dos_per_eV, exact, rtol=2e-3)
+    # integrated: for t < 0, E(k) < E ⇔ |2πk| < arccos(−E/2|t|), so states below E = 2 arccos(−E/2|t|)/π
+    # = 2(1 − arccos(E/2|t|)/π) per site, both spins (derived from the dispersion)
+    below = 2 * (1 - np.arccos(energies / (2 * abs(t))) / np.pi)
+    assert np.allclose(d.states_below, below, atol=1e-5)
+
+
+@pytest.mark.parametrize("method", ["tetrahedron", "gaussian"])
+def test_projected_dos_sums_to_total(method):
+    # projections that sum to one per state give PDOS summing to the total DOS (completeness; no source)
+    m = SSHChain()
+    kmesh = irreducible_mesh(m.crystal, (60, 1, 1))
+    e = m.eigenvalues(kmesh.kfrac)
+    rng = np.random.default_rng(SEED)
+    p = rng.random(e.shape + (1,))
+    proj = np.concatenate([p, 1 - p], axis=2)
+    grid = np.linspace(-2.5, 2.5, 201)
+    d = density_of_states(e, kmesh, grid, method=method, width_eV=0.05, weights_projected=proj)
+    assert d.projected_per_eV.shape == (201, 2)
+    assert np.allclose(d.projected_per_eV.sum(1), d.dos_per_eV, atol=1e-10)
+    assert np.all(d.projected_per_eV[:, 0] <= d.dos_per_eV + 1e-12)
+
+
+# ============================================================================================ errors
+def test_bad_method_name():
+    with pytest.raises(ParameterError, match="unknown Brillouin-zone integration method 'linear'.*allowed: tetra"):
+        solve_on_mesh(simple_cubic(), mesh=(2, 2, 2), method="linear")
+
+
+def test_electron_count_out_of_range():
+    with pytest.raises(ParameterError, match=r"n_electrons = 3\.0 is outside the allowed range 0 … 2"):
+        solve_on_mesh(simple_cubic(n_electrons=3.0), mesh=(2, 2, 2))
+    with pytest.raises(ParameterError, match=r"n_electrons = -1 is outside"):
+        find_fermi_level(np.zeros((1, 1)), [1.0], -1)
+
+
+def test_bad_width_and_tetrahedron_without_mesh():
+    with pytest.raises(ParameterError, match="width_eV must be a positive number of eV.*got 0"):
+        solve_on_mesh(simple_cubic(), mesh=(2, 2, 2), method="gaussian", width_eV=0)
+    with pytest.raises(ParameterError, match="needs the k-mesh"):
+        find_fermi_level(np.zeros((1, 1)), [1.0], 1.0, method="tetrahedron")
