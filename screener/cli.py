@@ -101,8 +101,137 @@ def cmd_info(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------- bands
+#: Bands listed per special point in the text table; more would not fit a terminal line.
+_BANDS_SHOWN = 12
+
+
+def _bands_parameters(crystal, path):
+    from .params import default_parameters, load_parameters
+
+    elements = list(dict.fromkeys(crystal.species))
+    return load_parameters(path, elements) if path else default_parameters(elements)
+
+
+def _orbital_groups(model):
+    """Shell letters of the basis ('s', 'p', 'd', in order of appearance) and (norb, ng) 0/1 membership."""
+    import numpy as np
+
+    shells = [str(name)[0] for name in model.orbital_name]
+    names = list(dict.fromkeys(shells))
+    return names, np.array([[s == g for g in names] for s in shells], dtype=float)
+
+
+def _shell_weights(model, kfrac, member):
+    """Eigenvalues (nk, nb) and the weight of each orbital shell in every state (nk, nb, ng)."""
+    import numpy as np
+
+    vals, vecs = model.eigensystem(kfrac)
+    # eigenvectors are columns: |c_ob|² summed over the orbitals of each shell (all sites)
+    return np.asarray(vals), np.einsum("kob,og->kbg", np.abs(vecs) ** 2, member)
+
+
+def _bands_text(args, crystal, model, path, energies, result, params_note) -> str:
+    import numpy as np
+
+    ef = result.fermi_level_eV
+    gap = f"{result.gap_eV:.4f} eV" if result.gap_eV > 0 else "0 (metal or partly filled band)"
+    route = " | ".join("–".join(lab for lab in piece) for piece in _path_pieces(path))
+    out = [
+        f"file              {args.file}",
+        f"formula           {crystal.formula}  ({crystal.n_atoms} atoms, {model.n_orbitals} orbitals, "
+        f"{model.n_electrons:g} valence electrons per cell)",
+        f"parameters        {params_note}",
+        f"path              {path.lattice_type}: {route}  ({len(path.kfrac)} k-points)",
+        f"k-mesh            {'×'.join(str(m) for m in result.mesh)} ({result.n_kpoints_irreducible} irreducible), "
+        f"{result.method}",
+        f"Fermi level       {ef:.4f} eV",
+        f"band energy       {result.band_energy_eV:.4f} eV per cell ({result.band_energy_eV / crystal.n_atoms:.4f} "
+        "eV per atom)",
+        f"gap               {gap}",
+        "",
+    ]
+    nb = energies.shape[1]
+    lo = 0
+    if nb > _BANDS_SHOWN:
+        # the bands nearest E_F matter most: centre the window on the last band below it
+        below = int(np.searchsorted(np.sort(energies.mean(axis=0)), ef))
+        lo = int(np.clip(below - _BANDS_SHOWN // 2, 0, nb - _BANDS_SHOWN))
+    hi = min(nb, lo + _BANDS_SHOWN)
+    which = f"bands {lo + 1}–{hi} of {nb}" if (lo, hi) != (0, nb) else f"all {nb} bands"
+    out.append(f"energies at the special points, E − E_F in eV ({which})")
+    out.append(f"  {'point':<8} {'k (fractions of reciprocal vectors)':<26}  energies")
+    seen = set()
+    for idx, label in path.vertices:
+        if label in seen:
+            continue
+        seen.add(label)
+        k = " ".join(f"{x:8.4f}" for x in path.kfrac[idx])
+        e = " ".join(f"{x:8.3f}" for x in energies[idx, lo:hi] - ef)
+        out.append(f"  {label:<8} {k:<26}  {e}")
+    return "\n".join(out)
+
+
+def _path_pieces(path):
+    pieces = []
+    for start, stop in path.segments:
+        pieces.append([lab for idx, lab in path.vertices if start <= idx < stop])
+    return pieces
+
+
 def cmd_bands(args) -> int:
-    raise NotImplementedError("screener bands is being written")
+    """Band structure along a path (default: special points of the lattice type), Fermi level, DOS figure."""
+    import numpy as np
+
+    from .electrons import density_of_states, solve_on_mesh
+    from .kspace import band_path
+    from .model import build_model
+
+    crystal = _read(args)
+    params = _bands_parameters(crystal, args.params)
+    model = build_model(crystal, params)
+    path = band_path(crystal, symprec=args.symprec, kpoints=args.kpoints)
+    result = solve_on_mesh(model, symprec=args.symprec)
+    shells, member = _orbital_groups(model)
+    energies, character = _shell_weights(model, path.kfrac, member)
+    params_note = f"{args.params}" if args.params else "built-in universal parameters"
+    if args.plot:
+        from .plots import plot_bands
+
+        eig_ir = np.asarray(result.eigenvalues_eV)
+        _, proj = _shell_weights(model, result.kmesh.kfrac, member)
+        lo = min(float(eig_ir.min()), float(energies.min())) - 0.5
+        hi = max(float(eig_ir.max()), float(energies.max())) + 0.5
+        dos = density_of_states(eig_ir, result.kmesh, np.linspace(lo, hi, 601), method="tetrahedron",
+                                weights_projected=proj, spin_degeneracy=model.spin_degeneracy,
+                                reciprocal_A=crystal.reciprocal_A)
+        plot_bands(path, energies, result.fermi_level_eV, args.plot, character=character, character_labels=shells,
+                   dos=dos, title=f"{crystal.formula} ({path.lattice_type}), E_F = {result.fermi_level_eV:.3f} eV")
+    if args.json:
+        _print_json({
+            "file": str(args.file),
+            "formula": crystal.formula,
+            "lattice_type": path.lattice_type,
+            "parameters": params_note,
+            "fermi_level_eV": result.fermi_level_eV,
+            "band_energy_eV": result.band_energy_eV,
+            "gap_eV": result.gap_eV,
+            "n_electrons": model.n_electrons,
+            "mesh": list(result.mesh),
+            "n_kpoints_irreducible": result.n_kpoints_irreducible,
+            "integration": result.method,
+            "labels": [{"index": int(i), "label": lab} for i, lab in path.vertices],
+            "kpoints_frac": path.kfrac.tolist(),
+            "x_inv_A": path.x_inv_A.tolist(),
+            "energies_eV": energies.tolist(),
+            "orbital_groups": shells,
+            "character": np.round(character, 5).tolist(),
+            **({"plot": str(args.plot)} if args.plot else {}),
+        })
+        return 0
+    print(_bands_text(args, crystal, model, path, energies, result, params_note))
+    if args.plot:
+        print(f"\nwrote {args.plot}")
+    return 0
 
 
 # ---------------------------------------------------------------------------------------------- rank
