@@ -45,6 +45,13 @@ def guess_format(path: str | Path, sniff: bool = True) -> str:
     return "poscar"
 
 
+def _by_name(path) -> str | None:
+    try:
+        return guess_format(path, sniff=False)
+    except FormatError:
+        return None
+
+
 def _module(fmt: str):
     if fmt not in FORMATS:
         raise FormatError(f"unknown format {fmt!r}; choose one of {', '.join(FORMATS)}")
@@ -57,13 +64,17 @@ def read_structure(path: str | Path, format: str | None = None, **options) -> Cr
     if not path.is_file():
         raise FormatError(f"{path}: no such file" + (" (it is a folder)" if path.is_dir() else ""))
     fmt = format or guess_format(path)
+    # a file whose name says nothing and whose content looks like neither CIF nor JSON is tried as POSCAR
+    fallback = format is None and fmt == "poscar" and _by_name(path) is None
     try:
         return _module(fmt).read(path, **options)
     except ScreenerError as exc:
         msg = str(exc)
-        if not msg.startswith(str(path)):
-            msg = f"{path}: {msg}"
-        raise type(exc)(msg) from exc
+        if msg.startswith(str(path)):
+            msg = msg[len(str(path)):].lstrip(": ")
+        if fallback and isinstance(exc, FormatError):
+            msg = f"unrecognised format (not CIF or JSON; as POSCAR: {msg}); pass --format if you know it"
+        raise type(exc)(f"{path}: {msg}") from exc
     except (UnicodeDecodeError, OSError) as exc:
         # readers decode and open files themselves; this is the net for what they did not foresee
         raise FormatError(f"{path}: cannot read the file as {fmt}: {exc}") from exc

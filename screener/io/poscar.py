@@ -49,7 +49,7 @@ def read(path: Path, *, species=None, min_distance_A: float = MIN_DISTANCE_A) ->
         symbols = tokens
         line_no, tokens = reader.next("atom counts")
         if not tokens or not all(_is_int(t) for t in tokens):
-            raise FormatError(f"line {line_no}: expected atom counts (integers), got {' '.join(tokens)!r}")
+            raise FormatError(f"line {line_no}: expected atom counts (integers), got {_show(tokens)}")
         counts = [int(t) for t in tokens]
     if any(c < 0 for c in counts) or sum(counts) == 0:
         raise FormatError(f"line {line_no}: atom counts must be non-negative with at least one atom, got {counts}")
@@ -87,7 +87,7 @@ def read(path: Path, *, species=None, min_distance_A: float = MIN_DISTANCE_A) ->
         line_no, tokens = reader.next("coordinate mode (Direct or Cartesian)")
     mode = tokens[0][0].lower()
     if mode not in "dck":
-        raise FormatError(f"line {line_no}: expected 'Direct' or 'Cartesian', got {' '.join(tokens)!r}")
+        raise FormatError(f"line {line_no}: expected 'Direct' or 'Cartesian', got {_show(tokens)}")
 
     n = sum(counts)
     pos = np.empty((n, 3))
@@ -180,18 +180,18 @@ class _Lines:
             if len(tokens) >= size and all(_is_float(t) for t in tokens[:size]):
                 return _floats(tokens[:size], line_no, what)
         expected = " or ".join(str(s) for s in sizes)
-        raise FormatError(f"line {line_no}: expected {expected} number(s) for the {what}, got {' '.join(tokens)!r}")
+        raise FormatError(f"line {line_no}: expected {expected} number(s) for the {what}, got {_show(tokens)}")
 
 
 def _floats(tokens: list[str], line_no: int, what: str) -> list[float]:
     if len(tokens) < 3 and what.startswith("position"):
-        raise FormatError(f"line {line_no}: expected three coordinates for the {what}, got {' '.join(tokens)!r}")
+        raise FormatError(f"line {line_no}: expected three coordinates for the {what}, got {_show(tokens)}")
     try:
         values = [float(t) for t in tokens]
     except ValueError:
-        raise FormatError(f"line {line_no}: expected numbers for the {what}, got {' '.join(tokens)!r}") from None
+        raise FormatError(f"line {line_no}: expected numbers for the {what}, got {_show(tokens)}") from None
     if not all(np.isfinite(values)):
-        raise StructureError(f"line {line_no}: the {what} contains a non-finite number: {' '.join(tokens)!r}")
+        raise StructureError(f"line {line_no}: the {what} contains a non-finite number: {_show(tokens)}")
     return values
 
 
@@ -209,3 +209,9 @@ def _is_float(t: str) -> bool:
     except ValueError:
         return False
     return True
+
+
+def _show(tokens: list[str], limit: int = 60) -> str:
+    """The offending line for a message, quoted and cut short."""
+    text = " ".join(tokens)
+    return repr(text if len(text) <= limit else text[: limit - 3] + "...")
