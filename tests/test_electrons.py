@@ -301,3 +301,20 @@ def test_bad_width_and_tetrahedron_without_mesh():
         solve_on_mesh(simple_cubic(), mesh=(2, 2, 2), method="gaussian", width_eV=0)
     with pytest.raises(ParameterError, match="needs the k-mesh"):
         find_fermi_level(np.zeros((1, 1)), [1.0], 1.0, method="tetrahedron")
+
+
+@pytest.mark.parametrize("method", ["tetrahedron", "gaussian"])
+def test_projected_dos_integrates_to_projection_weights_3d(method):
+    # ∫ PDOS_j dE = g Σ_k w_k Σ_n p_knj: each state's weight is spread, not lost (sum rule; no source)
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, (8, 8, 8), use_symmetry=False)  # random projections are not symmetric
+    e = np.concatenate([m.eigenvalues(kmesh.kfrac), 0.5 * m.eigenvalues(kmesh.kfrac) + 1.0], axis=1)
+    e.sort(axis=1)
+    rng = np.random.default_rng(SEED)
+    proj = rng.random(e.shape + (3,))
+    grid = np.linspace(-7.0, 8.0, 7501)
+    d = density_of_states(e, kmesh, grid, method=method, width_eV=0.05, weights_projected=proj,
+                          reciprocal_A=m.crystal.reciprocal_A)
+    expected = 2 * np.einsum("k,knj->j", kmesh.weights, proj)
+    assert np.allclose(np.trapezoid(d.projected_per_eV, grid, axis=0), expected, rtol=2e-4)
+    assert np.trapezoid(d.dos_per_eV, grid) == pytest.approx(4.0, rel=1e-5)
