@@ -22,7 +22,8 @@ Parameter file (TOML)
     harrison_set = "1980"             # optional, or "1981"
     [species.C]
     orbitals = ["pz"]                 # or "sp", ["s", "p"], ["s", "p", "d"], single orbitals px, dz2, ...
-    onsite_eV = { pz = 0.0 }          # keys s, p, d or single orbitals; single ones override their shell
+    onsite_eV = { pz = 0.0 }          # keys s, p, d (ignored if not in the basis) or single orbitals, which
+                                      # override their shell
     valence_electrons = 1
     soc_eV = 0.0                      # optional on-site spin–orbit λ (λ L·S on p and d shells)
     [bond."C-C"]
@@ -458,7 +459,7 @@ class _Ctx:
                 self.fail(f"{sec} onsite_eV: unknown orbital {k!r}; allowed: s, p, d and "
                           f"{', '.join(ORBITAL_L)}")
             hit = [o for o in targets if o in orbitals]
-            if not hit:
+            if not hit and k not in SHELLS:  # a shell key may name a shell the basis leaves out
                 self.fail(f"{sec} onsite_eV.{k} names no orbital of {el} (orbitals: {', '.join(orbitals)})")
             for o in hit:
                 onsite[o] = v

@@ -142,7 +142,7 @@ def test_file_overrides_defaults_partially(tmp_path):
         ('[bond."C-C"]\nV_eV = { pp_pi = -1 }\n', r"gives hoppings but no law"),
         ('[bond."C"]\nlaw = "linear"\n', r"two element symbols joined by '-'"),
         ('[species.C]\norbitals = ["pz"]\nvalence_electrons = 3\n', r"valence_electrons = 3 does not fit in 1 orbitals"),
-        ('[species.C]\norbitals = ["pz"]\nonsite_eV = { s = 1.0 }\n', r"onsite_eV.s names no orbital of C"),
+        ('[species.C]\norbitals = ["pz"]\nonsite_eV = { px = 1.0 }\n', r"onsite_eV.px names no orbital of C"),
         ('[bond."C-C"]\ncutoff_A = 1.0\ntaper_A = 2.0\n', r"taper_A = 2 needs a cutoff_A larger than it"),
         ("colour = 3\n", r"top level: unknown key\(s\) 'colour'"),
     ],
