@@ -324,3 +324,21 @@ def test_registry_lists_every_module():
     for fmt, (module, _) in FORMATS.items():
         mod = importlib.import_module(f"screener.io.{module}")
         assert callable(mod.read) and callable(mod.write), fmt
+
+
+# ------------------------------------------------------------------------------------------ demo structures
+DEMO = Path(__file__).parent.parent / "demo_structures"
+# the symmetry each invented arrangement must have: simple cubic Pm-3m No. 221; a square net or an isolated
+# chain in a tetragonal box P4/mmm No. 123; rocksalt Fm-3m No. 225 (International Tables A)
+_DEMO_GROUPS = {"As_simple_cubic.cif": 221, "Te_simple_cubic.vasp": 221, "Sb_linear_chain.cif": 123,
+                "Sb_square_net.vasp": 123, "GeTe_rocksalt.cif": 225}
+
+
+def test_demo_structures_are_small_marked_and_symmetric():
+    files = sorted(p.name for p in DEMO.iterdir() if p.suffix in (".cif", ".vasp"))
+    assert files == sorted(_DEMO_GROUPS)
+    for name, number in _DEMO_GROUPS.items():
+        c = read_structure(DEMO / name)
+        assert c.n_atoms <= 2
+        assert "INVENTED" in (DEMO / name).read_text().splitlines()[0]
+        assert analyse(c).number == number, name
