@@ -166,10 +166,8 @@ class TightBindingModel:
     """(nR, norb, norb) H_R blocks, eV: H_R[a, b] = <a in cell 0 | H | b in cell R>; real unless spin–orbit."""
     bond_length_A: np.ndarray
     """(p,) float, length of each bond in ``bonds``, Å."""
-    _h0: np.ndarray = field(repr=False)
     _rhalf: np.ndarray = field(repr=False)
-    _sym: np.ndarray = field(repr=False)
-    _anti: np.ndarray = field(repr=False)
+    _weights: np.ndarray = field(repr=False)
 
     @property
     def n_orbitals(self) -> int:
@@ -183,20 +181,16 @@ class TightBindingModel:
         """(nk, norb, norb) complex Hermitian H(k) for k in fractions of the reciprocal vectors (nk, 3)."""
         k = _as_kpoints(kfrac)
         norb = self.n_orbitals
-        nk = len(k)
-        out = np.empty((nk, norb * norb), dtype=complex)
-        if len(self._rhalf):
-            phase = (2 * np.pi) * (k @ self._rhalf.T)  # (nk, nR+)
-            c, s = np.cos(phase), np.sin(phase)
-            # H(k) = H0 + Σ_{R+} cos(φ)(H_R + H_R†) + i sin(φ)(H_R − H_R†)
-            if np.iscomplexobj(self._sym):
-                out[:] = self._h0 + c @ self._sym + 1j * (s @ self._anti)
-            else:
-                out.real = self._h0.real + c @ self._sym
-                out.imag = self._h0.imag + s @ self._anti
-        else:
-            out[:] = self._h0
-        return out.reshape(nk, norb, norb)
+        nk, nr = len(k), len(self._rhalf)
+        # H(k) = H0 + Σ_{R+} cos φ (H_R + H_R†) + i sin φ (H_R − H_R†), φ = 2π k·R: one real matrix product whose
+        # rows are [1, cos φ, sin φ] and whose result is the interleaved (re, im) storage of the complex stack
+        x = np.empty((nk, 1 + 2 * nr))
+        x[:, 0] = 1.0
+        if nr:
+            phase = (2 * np.pi) * (k @ self._rhalf.T)
+            np.cos(phase, out=x[:, 1:1 + nr])
+            np.sin(phase, out=x[:, 1 + nr:])
+        return (x @ self._weights).view(complex).reshape(nk, norb, norb)
 
     def eigenvalues(self, kfrac, chunk_size: int | None = None) -> np.ndarray:
         """(nk, norb) band energies in eV, ascending, diagonalised in chunks of ``chunk_size`` k-points."""
@@ -307,21 +301,20 @@ def build_model(crystal: Crystal, params: ParameterSet | None = None, *, bonds: 
     # pair +R with −R: keep R = 0 and one of each pair
     half = [a for a, r in enumerate(translations) if a > 0 and _canonical(np.array([1]), np.array([1]), r[None])[0]]
     half = np.array(half, dtype=int)
-    flat = HR.reshape(len(translations), -1)
+    flat = HR.reshape(len(translations), -1).astype(complex)
     HRT = np.conj(np.swapaxes(HR, 1, 2)).reshape(len(translations), -1)
-    h0 = flat[0].astype(complex)
     rhalf = translations[half].astype(float)
-    sym = flat[half] + HRT[half]
-    anti = flat[half] - HRT[half]
-    if not np.iscomplexobj(HR):
-        sym, anti = sym.real, anti.real
-    for arr in (HR, translations, h0, rhalf, sym, anti, dist):
+    sym = flat[half] + HRT[half]  # multiplies cos φ
+    anti = 1j * (flat[half] - HRT[half])  # multiplies sin φ
+    weights = np.concatenate([flat[:1], sym, anti]).view(float).reshape(1 + 2 * len(half), 2 * norb * norb)
+    weights = np.ascontiguousarray(weights)
+    for arr in (HR, translations, rhalf, weights, dist):
         arr.setflags(write=False)
     return TightBindingModel(
         crystal=crystal, params=params, bonds=bonds, orbital_site=site, orbital_name=names,
         n_electrons=n_electrons, spin_degeneracy=2 if spin == 1 else 1, periodic=periodic,
         translations=translations, hopping_eV=HR, bond_length_A=dist,
-        _h0=h0, _rhalf=rhalf, _sym=sym, _anti=anti,
+        _rhalf=rhalf, _weights=weights,
     )
 
 
