@@ -307,7 +307,11 @@ _NEIGHBOUR_CELLS = np.array([[a, b, c] for a in (-1, 0, 1) for b in (-1, 0, 1) f
 
 def _periodic_distances(f1, f2, lattice) -> np.ndarray:
     """(len(f1), len(f2)) shortest distances over the 27 nearest cell translations, Å."""
-    d = f1[:, None, :] - f2[None, :, :]
-    d -= np.round(d)
-    cart = (d[:, :, None, :] + _NEIGHBOUR_CELLS[None, None, :, :]) @ lattice
-    return np.linalg.norm(cart, axis=-1).min(axis=-1)
+    out = np.empty((len(f1), len(f2)))
+    step = 256  # bounds the (n1, step, 27, 3) temporary for large cells
+    for start in range(0, len(f2), step):
+        d = f1[:, None, :] - f2[None, start:start + step, :]
+        d -= np.round(d)
+        cart = (d[:, :, None, :] + _NEIGHBOUR_CELLS[None, None, :, :]) @ lattice
+        out[:, start:start + step] = np.linalg.norm(cart, axis=-1).min(axis=-1)
+    return out
