@@ -201,7 +201,7 @@ def cmd_bands(args) -> int:
         _, proj = _shell_weights(model, result.kmesh.kfrac, member)
         lo = min(float(eig_ir.min()), float(energies.min())) - 0.5
         hi = max(float(eig_ir.max()), float(energies.max())) + 0.5
-        dos = density_of_states(eig_ir, result.kmesh, np.linspace(lo, hi, 601), method="tetrahedron",
+        dos = density_of_states(eig_ir, result.kmesh, np.linspace(lo, hi, 401), method="tetrahedron",
                                 weights_projected=proj, spin_degeneracy=model.spin_degeneracy,
                                 reciprocal_A=crystal.reciprocal_A)
         plot_bands(path, energies, result.fermi_level_eV, args.plot, character=character, character_labels=shells,
