@@ -460,6 +460,27 @@ def _tet_corner_dos(e, eps):
     return out
 
 
+def _pair_blocks(lo: np.ndarray, hi: np.ndarray, max_pairs: int = 4 * _CHUNK_ROWS):
+    """Yield (rows, energy indices) for every pair row r, lo[r] ≤ index < hi[r], in blocks of ≲ max_pairs pairs.
+
+    A line or tetrahedron touches only the energies inside its own range; enumerating those pairs costs
+    memory proportional to their number, so they are produced in bounded blocks.
+    """
+    cnt = np.maximum(hi - lo, 0)
+    ends = np.cumsum(cnt)
+    start = 0
+    while start < len(cnt):  # loop over memory-bounded blocks, not over states
+        done = int(ends[start - 1]) if start else 0
+        stop = max(start + 1, int(np.searchsorted(ends, done + max_pairs, side="right")))
+        c = cnt[start:stop]
+        n_pairs = int(c.sum())
+        if n_pairs:
+            rows = np.repeat(np.arange(start, stop), c)
+            first = np.repeat(lo[start:stop] - np.concatenate([[0], np.cumsum(c)[:-1]]), c)
+            yield rows, first + np.arange(n_pairs)
+        start = stop
+
+
 class _TetrahedronGrid:
     """Band × tetrahedron rows of the full mesh, corner energies sorted, ready for repeated integration."""
 
@@ -549,36 +570,27 @@ class _TetrahedronGrid:
         ne, nb = len(energies), self.n_bands
         order_e = np.argsort(energies)
         es = energies[order_e]
-        dos = np.zeros(ne)
-        below = np.zeros(ne)
         nproj = 0 if proj_ir is None else proj_ir.shape[2]
         pdos = np.zeros((ne, nproj))
-        for s in self._chunks():
-            e = self.e[s]
-            # rows lying wholly below an energy count fully there; the others are evaluated pairwise
-            lo = np.searchsorted(es, e[:, 0], side="right")
-            hi = np.searchsorted(es, e[:, 3], side="left")
-            full_from = np.searchsorted(es, e[:, 3], side="left")
-            below += np.bincount(full_from, minlength=ne + 1)[:ne].cumsum()
-            cnt = np.maximum(hi - lo, 0)
-            if cnt.sum() == 0:
-                continue
-            row = np.repeat(np.arange(len(e)), cnt)
-            start = np.repeat(lo - np.concatenate([[0], np.cumsum(cnt)[:-1]]), cnt)
-            eidx = start + np.arange(len(row))
-            er, x = e[row], es[eidx]
-            dvals = _tet_dos(er, x)
-            dos += np.bincount(eidx, weights=dvals, minlength=ne)
+        # a row counts fully at energies ≥ its top corner; energies strictly inside (e1, e4) are evaluated as
+        # (row, energy) pairs, processed in blocks of bounded pair count so memory stays bounded
+        lo = np.searchsorted(es, self.e[:, 0], side="right")
+        hi = np.searchsorted(es, self.e[:, 3], side="left")
+        below = np.bincount(hi, minlength=ne + 1)[:ne].cumsum().astype(float)
+        dos = np.zeros(ne)
+        for rows, eidx in _pair_blocks(lo, hi):
+            er, x = self.e[rows], es[eidx]
             below += np.bincount(eidx, weights=_tet_count(er, x), minlength=ne)
             if nproj:
                 cw = _tet_corner_dos(er, x)  # (p, 4)
-                rows = row + s.start
+                dos += np.bincount(eidx, weights=cw.sum(1), minlength=ne)
                 tet, band = np.divmod(rows, nb)
                 corner = np.take_along_axis(self.corner_ir[tet], self.order[rows].astype(np.intp), axis=1)
-                pr = proj_ir[corner, band[:, None], :]  # (p, 4, nproj)
-                contrib = np.einsum("pc,pcj->pj", cw, pr)
+                contrib = np.einsum("pc,pcj->pj", cw, proj_ir[corner, band[:, None], :])
                 for j in range(nproj):  # loop over projection channels only
                     pdos[:, j] += np.bincount(eidx, weights=contrib[:, j], minlength=ne)
+            else:
+                dos += np.bincount(eidx, weights=_tet_dos(er, x), minlength=ne)
         inv = np.empty(ne, dtype=int)
         inv[order_e] = np.arange(ne)
         v = self.volume
@@ -719,25 +731,17 @@ def _smeared_dos(e, w, energies, method, sigma, mp_order, proj):
     dos = np.zeros(ne)
     below = np.zeros(ne)
     pdos = np.zeros((ne, 0 if pr is None else pr.shape[1]))
-    for s in range(0, len(states), _CHUNK_ROWS):
-        sl = slice(s, min(s + _CHUNK_ROWS, len(states)))
-        st, ww = states[sl], sw[sl]
-        lo = np.searchsorted(es, st - half, side="left")
-        hi = np.searchsorted(es, st + half, side="right")
-        # beyond the window the line has become a step: count it fully from there on
-        below += np.bincount(hi, weights=ww, minlength=ne + 1)[:ne].cumsum()
-        cnt = hi - lo
-        if cnt.sum() == 0:
-            continue
-        row = np.repeat(np.arange(len(st)), cnt)
-        start = np.repeat(lo - np.concatenate([[0], np.cumsum(cnt)[:-1]]), cnt)
-        eidx = start + np.arange(len(row))
-        x = (st[row] - es[eidx]) / sigma
-        d = ww[row] * delta(x, method, mp_order) / sigma
+    lo = np.searchsorted(es, states - half, side="left")
+    hi = np.searchsorted(es, states + half, side="right")
+    # beyond its window a line has become a step: it counts fully from there on
+    below += np.bincount(hi, weights=sw, minlength=ne + 1)[:ne].cumsum()
+    for rows, eidx in _pair_blocks(lo, hi):
+        x = (states[rows] - es[eidx]) / sigma
+        d = sw[rows] * delta(x, method, mp_order) / sigma
         dos += np.bincount(eidx, weights=d, minlength=ne)
-        below += np.bincount(eidx, weights=ww[row] * occupation(x, method, mp_order), minlength=ne)
+        below += np.bincount(eidx, weights=sw[rows] * occupation(x, method, mp_order), minlength=ne)
         if pr is not None:
-            prow = pr[sl][row]
+            prow = pr[rows]
             for j in range(pr.shape[1]):  # loop over projection channels only
                 pdos[:, j] += np.bincount(eidx, weights=d * prow[:, j], minlength=ne)
     inv = np.empty(ne, dtype=int)

@@ -312,9 +312,71 @@ def test_projected_dos_integrates_to_projection_weights_3d(method):
     e.sort(axis=1)
     rng = np.random.default_rng(SEED)
     proj = rng.random(e.shape + (3,))
-    grid = np.linspace(-7.0, 8.0, 7501)
+    grid = np.linspace(-7.0, 8.0, 1501)
     d = density_of_states(e, kmesh, grid, method=method, width_eV=0.05, weights_projected=proj,
                           reciprocal_A=m.crystal.reciprocal_A)
     expected = 2 * np.einsum("k,knj->j", kmesh.weights, proj)
     assert np.allclose(np.trapezoid(d.projected_per_eV, grid, axis=0), expected, rtol=2e-4)
     assert np.trapezoid(d.dos_per_eV, grid) == pytest.approx(4.0, rel=1e-5)
+
+
+# ============================================================================================ through the model
+def _pz_params(**species):
+    from screener.params import parameters_from_dict
+
+    return parameters_from_dict({"species": {"C": {"orbitals": ["pz"], "onsite_eV": {"pz": 0.0},
+                                                   "valence_electrons": 1, **species}}}, ["C"])
+
+
+def test_model_chain_half_filled_band_energy():
+    # π band of an isolated chain from build_model, E = 2 V_ppπ cos 2πk: half filling gives −4|V_ppπ|/π per site
+    # (Slater & Koster 1954 two-centre form; chain integral derived in test_chain_half_filled_band_energy)
+    from screener.model import build_model
+
+    a = 2.2
+    params = _pz_params()
+    model = build_model(Crystal(np.diag([a, 12.0, 12.0]), [[0, 0.5, 0.5]], ["C"]), params)
+    v_pi = float(params.bond("C", "C").hoppings(np.array([a]))["pp_pi"][0])
+    r = solve_on_mesh(model, mesh=(400, 400, 400))
+    assert r.mesh == (400, 1, 1)
+    assert r.band_energy_eV == pytest.approx(-4 * abs(v_pi) / np.pi, abs=1e-5)
+    default = solve_on_mesh(model)  # mesh from the default k-spacing, single point across the chain
+    assert default.mesh[1:] == (1, 1) and default.mesh[0] > 1
+    assert default.band_energy_eV == pytest.approx(r.band_energy_eV, abs=0.02)
+
+
+def test_model_dimerised_chain_gap_is_twice_the_hopping_difference():
+    # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): alternating hoppings t1, t2 open a gap 2|t1 − t2| at the zone
+    # boundary, with the Fermi level mid-gap at half filling
+    from screener.model import build_model
+
+    a, d = 2.2, 0.02
+    params = _pz_params()
+    crystal = Crystal(np.diag([2 * a, 12.0, 12.0]), [[0, 0.5, 0.5], [0.5 - d, 0.5, 0.5]], ["C", "C"])
+    model = build_model(crystal, params)
+    t1, t2 = params.bond("C", "C").hoppings(np.array([2 * a * (0.5 - d), 2 * a * (0.5 + d)]))["pp_pi"]
+    for method in METHODS:
+        r = solve_on_mesh(model, mesh=(24, 1, 1), method=method, width_eV=0.02)
+        assert r.gap_eV == pytest.approx(2 * abs(t1 - t2), abs=1e-9)
+        assert r.fermi_level_eV == pytest.approx(0.0, abs=1e-9)
+
+
+def test_model_spin_orbit_basis_gives_the_same_band_energy():
+    # an s-only basis has no orbital moment, so spin–orbit coupling changes nothing: the doubled basis with
+    # spin_degeneracy 1 must reproduce the spin-degenerate band energy (L = 0; textbook atomic physics)
+    from screener.model import build_model
+    from screener.params import parameters_from_dict
+
+    def sc(**extra):
+        ps = parameters_from_dict({
+            "species": {"Po": {"orbitals": ["s"], "onsite_eV": {"s": 0.0}, "valence_electrons": 0.7, **extra}},
+            "bond": {"Po-Po": {"law": "power", "r0_A": 2.5, "exponent": 2, "V_eV": {"ss_sigma": -0.8}}},
+        }, ["Po"])
+        return build_model(Crystal(np.eye(3) * 2.5, [[0, 0, 0]], ["Po"]), ps)
+
+    plain, soc = sc(), sc(soc_eV=0.3)
+    assert (plain.spin_degeneracy, soc.spin_degeneracy) == (2, 1)
+    a = solve_on_mesh(plain, mesh=(10, 10, 10))
+    b = solve_on_mesh(soc, mesh=(10, 10, 10))
+    assert b.band_energy_eV == pytest.approx(a.band_energy_eV, abs=1e-9)
+    assert b.fermi_level_eV == pytest.approx(a.fermi_level_eV, abs=1e-9)
