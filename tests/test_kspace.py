@@ -236,3 +236,35 @@ def test_bad_kpoints_string(bad):
 def test_bad_kpoints_array():
     with pytest.raises(ParameterError, match=r"\(m, 3\) array"):
         parse_kpoints(np.zeros((2, 2)))
+
+
+# ------------------------------------------------------------------------------------------------ property tests
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_SPECIAL_ALPHA = (60.0, 90.0, np.degrees(np.arccos(-1 / 3)))  # rhombohedral angles that are cubic (fcc, sc, bcc)
+
+
+@settings(max_examples=12, derandomize=True, deadline=None)
+@given(alpha=st.floats(35.0, 115.0).filter(lambda a: min(abs(a - s) for s in _SPECIAL_ALPHA) > 2.0))
+def test_rhombohedral_points_on_zone_surface_for_any_angle(alpha):
+    # Setyawan & Curtarolo (2010), RHL1/RHL2: the η, ν formulas put every special point on the zone boundary
+    # (three equal vectors with equal pairwise angles exist only for α < 120°)
+    crystal = _one_atom(_rhombohedral(3.5, alpha), "Bi")
+    lattice_type, points, _ = special_points(crystal)
+    assert lattice_type == ("RHL1" if alpha < 90 else "RHL2")
+    for label, f in points.items():
+        if label != "Γ":
+            assert _on_zone_surface(crystal, _cart(crystal, f)), (alpha, label)
+
+
+@settings(max_examples=12, derandomize=True, deadline=None)
+@given(c_over_a=st.floats(0.5, 2.5).filter(lambda r: abs(r - 1) > 0.03 and abs(r - np.sqrt(2)) > 0.03))
+def test_body_centred_tetragonal_points_on_zone_surface(c_over_a):
+    # Setyawan & Curtarolo (2010), BCT1 (c < a) and BCT2 (c > a)
+    crystal = _conventional(np.diag([3.0, 3.0, 3.0 * c_over_a]), "I")
+    lattice_type, points, _ = special_points(crystal)
+    assert lattice_type == ("BCT1" if c_over_a < 1 else "BCT2")
+    for label, f in points.items():
+        if label != "Γ":
+            assert _on_zone_surface(crystal, _cart(crystal, f)), (c_over_a, label)
