@@ -2,6 +2,8 @@
 
 from .errors import ConvergenceError, FormatError, ParameterError, ScreenerError, StructureError, SymmetryError
 from .io import read_structure, write_structure
+from .model import build_model
+from .params import default_parameters, load_parameters
 from .structure import Crystal
 
 __version__ = "0.1.0"
@@ -14,6 +16,9 @@ __all__ = [
     "ScreenerError",
     "StructureError",
     "SymmetryError",
+    "build_model",
+    "default_parameters",
+    "load_parameters",
     "read_structure",
     "write_structure",
 ]
