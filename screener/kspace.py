@@ -126,7 +126,7 @@ def special_points(crystal: Crystal, symprec: float = 1e-3):
     -------
     lattice_type : str
         e.g. 'FCC', 'BCT2', 'RHL1', or 'fallback-<family>' for the lattice types not tabulated here
-        (ORCF, ORCI, ORCC, MCL, MCLC, TRI): Γ and the face centres X, Y, Z of the reciprocal cell of the
+        (ORCF, MCL, MCLC, TRI): Γ and the face centres X, Y, Z of the reciprocal cell of the
         Niggli-reduced primitive cell, path Γ–X|Y–Γ–Z.
     points : dict
         label -> (3,) fractions of the reciprocal vectors of the *input* cell.
@@ -214,6 +214,31 @@ def _tabulated(family: str, centring: str, conv: np.ndarray, a: float, b: float,
                "U": (half, 0, half), "X": (half, 0, 0), "Y": (0, half, 0), "Z": (0, 0, half)}
         return "ORC", prim, pts, [["Γ", "X", "S", "Y", "Γ", "Z", "U", "R", "T", "Z"], ["Y", "T"], ["U", "X"],
                                   ["S", "R"]]
+    if family == "ORCI":
+        # body centring is unchanged by permuting the axes, so sort them a < b < c as the paper does
+        conv = conv[np.argsort(np.linalg.norm(conv, axis=1), kind="stable")]
+        a, b, c = np.linalg.norm(conv, axis=1)
+        zeta, eta = (1 + a**2 / c**2) / 4, (1 + b**2 / c**2) / 4
+        delta, mu = (b**2 - a**2) / (4 * c**2), (a**2 + b**2) / (4 * c**2)
+        pts = {"Γ": (0, 0, 0), "L": (-mu, mu, half - delta), "L1": (mu, -mu, half + delta),
+               "L2": (half - delta, half + delta, -mu), "R": (0, half, 0), "S": (half, 0, 0), "T": (0, 0, half),
+               "W": (quarter, quarter, quarter), "X": (-zeta, zeta, zeta), "X1": (zeta, 1 - zeta, -zeta),
+               "Y": (eta, -eta, eta), "Y1": (1 - eta, eta, -eta), "Z": (half, half, -half)}
+        return "ORCI", _CENTRING["I"] @ conv, pts, [["Γ", "X", "L", "T", "W", "R", "X1", "Z", "Γ", "Y", "S", "W"],
+                                                    ["L1", "Y"], ["Y1", "Z"]]
+    if family == "ORCC":
+        # the paper centres the (a, b) face with a < b; an A-centred cell is first turned cyclically into C
+        if centring == "A":
+            conv = conv[[1, 2, 0]]
+        if np.linalg.norm(conv[0]) > np.linalg.norm(conv[1]):
+            conv = conv[[1, 0, 2]]
+        a, b, c = np.linalg.norm(conv, axis=1)
+        zeta = (1 + a**2 / b**2) / 4
+        pts = {"Γ": (0, 0, 0), "A": (zeta, zeta, half), "A1": (-zeta, 1 - zeta, half), "R": (0, half, half),
+               "S": (0, half, 0), "T": (-half, half, half), "X": (zeta, zeta, 0), "X1": (-zeta, 1 - zeta, 0),
+               "Y": (-half, half, 0), "Z": (0, 0, half)}
+        return "ORCC", _CENTRING["C"] @ conv, pts, [["Γ", "X", "S", "R", "A", "Z", "Γ", "Y", "X1", "A1", "T", "Y"],
+                                                    ["Z", "T"]]
     if family == "HEX":
         third = 1 / 3
         pts = {"Γ": (0, 0, 0), "A": (0, 0, half), "H": (third, third, half), "K": (third, third, 0),

@@ -40,6 +40,8 @@ CASES = {
     "BCT1": _conventional(np.diag([4.0, 4.0, 3.0]), "I"),  # c < a
     "BCT2": _conventional(np.diag([3.0, 3.0, 5.0]), "I"),  # c > a
     "ORC": _one_atom(np.diag([4.0, 5.0, 3.0])),  # deliberately not a < b < c
+    "ORCI": _conventional(np.diag([5.0, 3.0, 4.0]), "I"),  # axes to be sorted a < b < c
+    "ORCC": Crystal(np.diag([4.0, 3.0, 5.0]), [[0, 0, 0], [0.5, 0.5, 0]], ["Po"] * 2),  # C-centred, a > b
     "HEX": _one_atom(_hexagonal(3.0, 4.5)),
     "RHL1": _one_atom(_rhombohedral(3.5, 70.0), "Bi"),  # alpha < 90°
     "RHL2": _one_atom(_rhombohedral(3.5, 100.0), "Bi"),  # alpha > 90°
@@ -187,6 +189,22 @@ def test_hexagonal_setting_of_rhombohedral_crystal():
     # Z lies on the threefold axis at half the primitive reciprocal spacing along c*: 3/(2 c_h) (no 2π)
     assert np.allclose(np.abs(_cart(hexcell, pts["Z"])), [0, 0, 1.5 / c_h])
     assert _on_zone_surface(hexcell, _cart(hexcell, pts["L"]))
+
+
+def test_a_centred_orthorhombic_is_turned_into_c():
+    # Amm2 (International Tables A, No. 38): atoms on 2a (0,0,z) with the A centring (0,1/2,1/2)
+    lat = np.diag([3.0, 4.0, 5.5])
+    crystal = Crystal(lat, [[0, 0, 0], [0, 0.5, 0.5], [0, 0, 0.31], [0, 0.5, 0.81]], ["Ge", "Ge", "Te", "Te"])
+    import spglib
+
+    from screener.symmetry import _cell
+
+    assert spglib.get_symmetry_dataset(_cell(crystal)).international == "Amm2"
+    lattice_type, points, _ = special_points(crystal)
+    assert lattice_type == "ORCC"
+    for label, f in points.items():
+        if label != "Γ":
+            assert _on_zone_surface(crystal, _cart(crystal, f)), label
 
 
 def test_fallback_for_triclinic():
