@@ -179,7 +179,11 @@ def _path_pieces(path):
 
 
 def cmd_bands(args) -> int:
-    """Band structure along a path (default: special points of the lattice type), Fermi level, DOS figure."""
+    """Band structure along a path (default: special points of the lattice type), Fermi level, DOS figure.
+
+    JSON: k-points are fractions of the input cell's reciprocal vectors, energies absolute and ascending; labels
+    spell Γ as "Γ" (JSON-escaped as \\u0393), other labels as in Setyawan & Curtarolo (2010) with plain digits.
+    """
     import numpy as np
 
     from .electrons import density_of_states, solve_on_mesh
