@@ -185,6 +185,13 @@ def _check_eigs(eigs_eV, weights=None) -> np.ndarray:
         raise ParameterError(f"eigenvalues must be a non-empty (n_kpoints, n_bands) array, got shape {np.shape(eigs_eV)}")
     if not np.all(np.isfinite(e)):
         raise ParameterError("eigenvalues contain NaN or infinite values; check the Hamiltonian parameters")
+    drop = np.diff(e, axis=1)
+    if drop.size and drop.min() < -1e-9 * max(1.0, float(np.abs(e).max())):
+        k, b = np.unravel_index(int(np.argmin(drop)), drop.shape)
+        raise ParameterError(
+            f"eigenvalues must ascend along the band axis, but at k-point index {k} band index {b + 1} lies "
+            f"{-drop[k, b]:.3g} eV below band index {b}; sort them (numpy.linalg.eigvalsh returns them sorted)"
+        )
     if weights is not None and np.shape(weights) != (e.shape[0],):
         raise ParameterError(
             f"got {np.shape(weights)} k-point weights for {e.shape[0]} k-points; give one weight per k-point"

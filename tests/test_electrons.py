@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, seed, settings
+from hypothesis import strategies as st
 
 from screener.electrons import (
     METHODS,
@@ -231,6 +233,23 @@ def test_full_and_empty_bands():
         assert empty.band_energy_eV == 0.0
 
 
+@seed(SEED)
+@settings(max_examples=15, deadline=None)
+@given(shift=st.floats(-20, 20), filling=st.floats(0.05, 3.95), method=st.sampled_from(METHODS))
+def test_rigid_shift_moves_fermi_level_and_energy(shift, filling, method):
+    # shifting every level by c shifts E_F by c and the band energy by c·N (energy zero is arbitrary; no source)
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, (6, 6, 6))
+    e1 = m.eigenvalues(kmesh.kfrac)
+    e = np.concatenate([e1, 0.5 * e1 + 0.8], axis=1)
+    e.sort(axis=1)
+    a = integrate(e, kmesh, filling, method=method, width_eV=0.1, reciprocal_A=m.crystal.reciprocal_A)
+    b = integrate(e + shift, kmesh, filling, method=method, width_eV=0.1, reciprocal_A=m.crystal.reciprocal_A)
+    assert b.fermi_level_eV == pytest.approx(a.fermi_level_eV + shift, abs=1e-8)
+    assert b.band_energy_eV == pytest.approx(a.band_energy_eV + shift * filling, abs=1e-8)
+    assert np.sum(b.occupations) == pytest.approx(filling, abs=1e-9)
+
+
 # ============================================================================================ DOS
 def test_simple_cubic_dos_edges_and_state_count():
     # band edges at ε ± 6|V| (Slater & Koster, Phys. Rev. 94, 1498 (1954): sc s band, from memory) and
@@ -294,6 +313,17 @@ def test_electron_count_out_of_range():
         solve_on_mesh(simple_cubic(n_electrons=3.0), mesh=(2, 2, 2))
     with pytest.raises(ParameterError, match=r"n_electrons = -1 is outside"):
         find_fermi_level(np.zeros((1, 1)), [1.0], -1)
+
+
+def test_unsorted_or_nonfinite_eigenvalues():
+    kmesh = irreducible_mesh(simple_cubic().crystal, (2, 2, 2))
+    e = np.tile([0.0, 1.0], (len(kmesh.weights), 1))
+    e[1] = [1.0, 0.5]
+    with pytest.raises(ParameterError, match="must ascend along the band axis.*k-point index 1 band index 1 lies 0.5 eV below band index 0"):
+        integrate(e, kmesh, 1.0)
+    e[1] = [np.nan, 1.0]
+    with pytest.raises(ParameterError, match="NaN or infinite"):
+        integrate(e, kmesh, 1.0)
 
 
 def test_bad_width_and_tetrahedron_without_mesh():
