@@ -28,8 +28,10 @@ class ScreenSettings:
     """Starting k-point spacing, Å⁻¹ (2π included)."""
     convergence_meV_per_atom: float = 0.5
     """ΔE at the optimum is converged when a finer mesh changes it by less than this, meV/atom."""
-    max_refinements: int = 3
+    max_refinements: int = 5
     """Mesh refinements tried before a candidate is flagged unconverged."""
+    max_kpoints: int = 150_000
+    """Largest full k-mesh (points) a refinement may use; beyond it the candidate is flagged unconverged."""
     refine_factor: float = 0.7
     """Each refinement multiplies the k-spacing by this factor."""
     max_amplitude_fraction: float = 0.12
@@ -222,6 +224,20 @@ def parent_energetics(parent: Crystal, params, settings: ScreenSettings, step: f
     )
 
 
+def family_mesh(family: DistortionFamily, kspacing_per_A: float, periodic) -> tuple[int, int, int]:
+    """Γ-centred supercell mesh from a k-spacing, each size rounded up to a multiple of q's denominator.
+
+    The parent's bands fold onto the supercell zone boundary, where the distortion opens its gap; a mesh that
+    contains those points samples the gap opening and the folded Fermi level of the parent alike.
+    """
+    from fractions import Fraction
+
+    den = int(np.lcm.reduce([Fraction(x).limit_denominator(24).denominator for x in family.q_frac]))
+    mesh = mesh_from_spacing(family.reference, kspacing_per_A, periodic)
+    return tuple(int(-(-n // den) * den) if p and n > 1 or (p and den > 1) else int(n)
+                 for n, p in zip(mesh, periodic, strict=True))
+
+
 def _verdict(delta_meV: float, converged: bool, settings: ScreenSettings) -> str:
     if delta_meV > -settings.stable_tolerance_meV_per_atom:
         return "stable"
@@ -235,7 +251,7 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
     """Scan the amplitude, minimise, check k-mesh convergence and describe the optimum."""
     ev = _Evaluator(family, params, parent.repulsion_eV, parent.pair_exponent, settings)
     ref = family.reference
-    mesh = mesh_from_spacing(ref, settings.kspacing_per_A, ev.model0.periodic)
+    mesh = family_mesh(family, settings.kspacing_per_A, ev.model0.periodic)
     nn = nearest_neighbour_bonds(ref)
     d_min = float(nn.distance_A.min())
     lam_max = settings.max_amplitude_fraction * d_min
@@ -275,6 +291,7 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
         b, e, r = e_at(lam_opt, m)
         return (b - pb) * 1e3, (e - pe) * 1e3, r
 
+    coarse_mesh = mesh
     d_band, d_el, res_opt = delta(mesh)
     converged = lam_opt == 0.0
     spacing = settings.kspacing_per_A
@@ -282,14 +299,24 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
         if converged:
             break
         spacing *= settings.refine_factor
-        finer = mesh_from_spacing(ref, spacing, ev.model0.periodic)
+        finer = family_mesh(family, spacing, ev.model0.periodic)
         if finer == mesh:
             continue
+        if np.prod(finer) > settings.max_kpoints:
+            note.append(f"mesh refinement stopped at the {settings.max_kpoints}-point limit")
+            break
         nb, ne, nr = delta(finer)
         converged = abs((nb + ne) - (d_band + d_el)) < settings.convergence_meV_per_atom
         mesh, d_band, d_el, res_opt = finer, nb, ne, nr
     if not converged:
         note.append(f"ΔE not converged to {settings.convergence_meV_per_atom} meV/atom on mesh {mesh}")
+    elif lam_opt > 0 and mesh != coarse_mesh:
+        # the amplitude came from the coarse scan: polish it on the converged mesh
+        res = minimize_scalar(lambda x: sum(e_at(x, mesh)[:2]), bounds=(0.5 * lam_opt, min(1.5 * lam_opt, lam_max)),
+                              method="bounded", options={"xatol": 1e-4 * max(d_min, 1.0)})
+        if res.fun < sum(e_at(lam_opt, mesh)[:2]):
+            lam_opt = float(res.x)
+            d_band, d_el, res_opt = delta(mesh)
 
     optimum = family.at_with_shift(lam_opt)
     crystal_opt, shift = optimum

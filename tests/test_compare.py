@@ -1,0 +1,153 @@
+"""The energy comparator and ranked verdicts against published models and theorems."""
+
+import numpy as np
+import pytest
+
+from screener.compare import ScreenSettings, evaluate_family, parent_energetics
+from screener.distort import dimerise, rhombohedral_split
+from screener.elastic import ElasticModel, exponent_for_bulk_modulus, pair_repulsion_prefactor_eV
+from screener.errors import ParameterError
+from screener.params import default_parameters, load_parameters
+from screener.rank import rank
+from screener.structure import Crystal
+
+# Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
+SSH_TOML = """
+[species.C]
+orbitals = ["pz"]
+onsite_eV = {{ pz = 0.0 }}
+valence_electrons = {electrons}
+
+[bond."C-C"]
+law = "linear"
+r0_A = 1.22
+V_eV = {{ pp_pi = -2.5 }}
+slope_eV_per_A = {{ pp_pi = 4.1 }}
+cutoff_A = 1.6
+spring_eV_per_A2 = 21.0
+"""
+
+
+def ssh_chain():
+    # one site per cell along x; 10 Å of vacuum isolates the chain (no hopping crosses y or z)
+    return Crystal(np.diag([1.22, 10.0, 10.0]), [[0, 0, 0]], ["C"])
+
+
+def ssh_params(tmp_path, electrons=1):
+    p = tmp_path / f"ssh_{electrons}.toml"
+    p.write_text(SSH_TOML.format(electrons=electrons))
+    return load_parameters(p, ["C"])
+
+
+def screen_chain(tmp_path, electrons):
+    chain = ssh_chain()
+    params = ssh_params(tmp_path, electrons)
+    settings = ScreenSettings()
+    parent = parent_energetics(chain, params, settings)
+    (fam,) = dimerise(chain)
+    return evaluate_family(fam, params, parent, settings)
+
+
+def test_ssh_chain_dimerisation_matches_published_values(tmp_path):
+    res = screen_chain(tmp_path, electrons=1)
+    # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): u0 ≈ 0.04 Å, gap 2Δ = 8 α u0 ≈ 1.3–1.4 eV,
+    # condensation energy ≈ 13–15 meV per site (values as quoted in the project issue from that paper)
+    assert res.verdict == "unstable" and res.converged
+    assert 0.035 < res.amplitude_A < 0.045
+    assert res.gap_eV == pytest.approx(8 * 4.1 * res.amplitude_A, rel=0.03)
+    assert 1.2 < res.gap_eV < 1.5
+    assert -16.0 < res.delta_E_meV_per_atom < -12.0
+    # bonds alternate 1.22 ∓ 2 u0
+    short, long_ = res.shell_distances_A
+    assert short == pytest.approx(1.22 - 2 * res.amplitude_A, abs=1e-3)
+    assert long_ == pytest.approx(1.22 + 2 * res.amplitude_A, abs=1e-3)
+    # the harmonic lattice term of the SSH model: K/2 (2u)^2 per site
+    assert res.delta_E_elastic_meV_per_atom == pytest.approx(1e3 * 0.5 * 21.0 * (2 * res.amplitude_A) ** 2, rel=1e-6)
+    assert res.space_group_number == 123  # P4/mmm: the dimerised chain in its square box (International Tables A)
+
+
+@pytest.mark.parametrize("electrons", [0, 2])
+def test_full_or_empty_band_does_not_dimerise(tmp_path, electrons):
+    # Peierls theorem (Peierls 1955): only a partly filled band gains; a full or empty one does not
+    res = screen_chain(tmp_path, electrons)
+    assert res.verdict == "stable"
+    assert res.amplitude_A == 0.0
+    assert res.delta_E_band_meV_per_atom == pytest.approx(0.0, abs=1e-9)
+
+
+def simple_cubic(a_A, element="As"):
+    return Crystal(np.eye(3) * a_A, [[0, 0, 0]], [element])
+
+
+# volume per atom of A7 arsenic from its hexagonal cell a = 3.7598 Å, c = 10.5475 Å, Z = 6
+# (Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969); from memory) -> 21.52 Å^3, simple-cubic a = 2.781 Å
+A_SC_AS = (np.sqrt(3) / 2 * 3.7598**2 * 10.5475 / 6) ** (1 / 3)
+
+
+def test_group15_simple_cubic_splits_into_A7():
+    result = rank(simple_cubic(A_SC_AS), generators=["rhombohedral-split", "dimerise"], progress=False)
+    best = result.candidates[0]
+    # Peierls picture of the A7 structure: a half-filled p shell on a simple-cubic lattice splits into
+    # 3 short + 3 long bonds, R-3m (International Tables A, No. 166)
+    assert best.generator == "rhombohedral-split"
+    assert best.verdict == "unstable"
+    assert (best.space_group_symbol, best.space_group_number) == ("R-3m", 166)
+    short, long_ = best.shell_distances_A
+    ratio = long_ / short
+    # published A7 As: 2.52 / 3.12 Å, ratio 1.24 (Schiferl & Barrett 1969). The screen's ratio depends on the
+    # repulsion exponent and universal parameters; assert only a physically sensible range (1 < ratio < 1.4).
+    assert 1.0 < ratio < 1.4
+
+
+def test_group16_filling_does_not_split():
+    # alpha-Po is simple cubic: a two-thirds-filled p shell gains nothing from the rhombohedral split
+    # (common practice, no source); Te valence (6 electrons) at the A7-like volume per atom
+    result = rank(simple_cubic(A_SC_AS, "Te"), generators=["rhombohedral-split"], progress=False)
+    assert result.candidates[0].verdict != "unstable"
+
+
+def test_pair_repulsion_holds_parent_in_equilibrium():
+    # Chadi, PRL 41, 1062 (1978): the repulsion is fixed so the parent is stationary under uniform scaling
+    from screener.electrons import solve_on_mesh
+    from screener.model import build_model, find_bonds
+
+    crystal = simple_cubic(A_SC_AS)
+    params = default_parameters(["As"])
+    settings = ScreenSettings()
+    parent = parent_energetics(crystal, params, settings)
+    assert parent.repulsion_eV > 0
+    bonds = find_bonds(crystal, params)
+    mesh = parent.kmesh
+    from screener.compare import elastic_model_for
+
+    el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent)
+
+    def total(s):
+        c = crystal.replace(lattice_A=crystal.lattice_A * (1 + s))
+        e_band = solve_on_mesh(build_model(c, params, bonds=bonds), mesh).band_energy_eV
+        return e_band + el.energy_eV(c.lattice_A, c.frac)
+
+    h = 0.002
+    slope = (total(h) - total(-h)) / (2 * h)
+    assert abs(slope) < 0.02 * parent.band_slope_eV_per_atom * crystal.n_atoms
+
+
+def test_elastic_helpers_validate_and_follow_formulae():
+    # harmonic spring: ½ K (d − d0)^2 (common practice, no source)
+    el = ElasticModel(np.array([0]), np.array([0]), np.array([[1, 0, 0]]), np.array([2.0]), np.array([0.0]),
+                      np.array([10.0]), 4.0)
+    assert el.energy_eV(np.eye(3) * 2.1, np.zeros((1, 3))) == pytest.approx(0.5 * 10 * 0.1**2)
+    assert pair_repulsion_prefactor_eV(-1.0, 3, 4.0) == 0.0
+    with pytest.raises(ParameterError, match="exponent must be positive"):
+        pair_repulsion_prefactor_eV(1.0, 3, 0.0)
+    with pytest.raises(ParameterError, match="bulk modulus must be positive"):
+        exponent_for_bulk_modulus(-5, 20.0, 1.0, 0.0)
+    with pytest.raises(ParameterError, match="does not favour compression"):
+        exponent_for_bulk_modulus(50, 20.0, -1.0, 0.0)
+    with pytest.raises(ParameterError, match="kspacing_per_A must be a positive number"):
+        ScreenSettings(kspacing_per_A=0)
+
+
+def test_rhombohedral_split_only_for_cubic_networks():
+    chain = ssh_chain()
+    assert rhombohedral_split(chain) == []
