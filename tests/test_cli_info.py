@@ -4,6 +4,8 @@ import json
 from pathlib import Path
 
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from screener import read_structure
 from screener.cli import main
@@ -159,3 +161,26 @@ def test_debug_shows_the_exception(tmp_path):
 def test_species_option_on_cif_is_an_error(capsys):
     assert main(["info", str(DATA / "Al_fcc_symbol_only.cif"), "--species", "Al"]) == 2
     assert "applies only to old-style POSCAR" in capsys.readouterr().err
+
+
+# ------------------------------------------------------------------------------------------ fuzz
+_FUZZ_SOURCES = ["As_A7_hexagonal.cif", "GeTe_rocksalt_selective.vasp", "Al_fcc_symbol_only.cif"]
+
+
+@settings(max_examples=25, derandomize=True, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(name=st.sampled_from(_FUZZ_SOURCES), cut=st.floats(0, 1), junk=st.binary(max_size=12), at=st.floats(0, 1))
+def test_corrupted_files_never_give_a_traceback(tmp_path, capsys, name, cut, junk, at):
+    # robustness, common practice, no source: any corruption either still reads or exits 2 with one line
+    data = (DATA / name).read_bytes()
+    k = int(at * len(data))
+    data = (data[:k] + junk + data[k:])[: max(1, int(cut * len(data) * 1.1))]
+    path = tmp_path / name
+    path.write_bytes(data)
+    status = main(["info", str(path), "--json"])
+    out, err = capsys.readouterr()
+    assert status in (0, 2)
+    if status == 2:
+        assert out == "" and len(err.splitlines()) == 1 and str(path) in err
+    else:
+        assert err == "" and json.loads(out)["n_atoms"] >= 1
