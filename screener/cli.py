@@ -105,31 +105,6 @@ def cmd_info(args) -> int:
 _BANDS_SHOWN = 12
 
 
-def _bands_parameters(crystal, path):
-    from .params import default_parameters, load_parameters
-
-    elements = list(dict.fromkeys(crystal.species))
-    return load_parameters(path, elements) if path else default_parameters(elements)
-
-
-def _orbital_groups(model):
-    """Shell letters of the basis ('s', 'p', 'd', in order of appearance) and (norb, ng) 0/1 membership."""
-    import numpy as np
-
-    shells = [str(name)[0] for name in model.orbital_name]
-    names = list(dict.fromkeys(shells))
-    return names, np.array([[s == g for g in names] for s in shells], dtype=float)
-
-
-def _shell_weights(model, kfrac, member):
-    """Eigenvalues (nk, nb) and the weight of each orbital shell in every state (nk, nb, ng)."""
-    import numpy as np
-
-    vals, vecs = model.eigensystem(kfrac)
-    # eigenvectors are columns: |c_ob|² summed over the orbitals of each shell (all sites)
-    return np.asarray(vals), np.einsum("kob,og->kbg", np.abs(vecs) ** 2, member)
-
-
 def _bands_text(args, crystal, model, path, energies, result, params_note) -> str:
     import numpy as np
 
@@ -186,30 +161,16 @@ def cmd_bands(args) -> int:
     """
     import numpy as np
 
-    from .electrons import density_of_states, solve_on_mesh
-    from .kspace import band_path
-    from .model import build_model
+    from .bands import band_structure, plot_band_structure
 
     crystal = _read(args)
-    params = _bands_parameters(crystal, args.params)
-    model = build_model(crystal, params)
-    path = band_path(crystal, symprec=args.symprec, kpoints=args.kpoints)
-    result = solve_on_mesh(model, symprec=args.symprec)
-    shells, member = _orbital_groups(model)
-    energies, character = _shell_weights(model, path.kfrac, member)
+    params = _parameters_for(crystal, args.params)
+    bs = band_structure(crystal, params, kpoints=args.kpoints, symprec=args.symprec)
+    model, path, energies, character, shells, result = (bs.model, bs.path, bs.energies_eV, bs.character,
+                                                         list(bs.shells), bs.ground_state)
     params_note = f"{args.params}" if args.params else "built-in universal parameters"
     if args.plot:
-        from .plots import plot_bands
-
-        eig_ir = np.asarray(result.eigenvalues_eV)
-        _, proj = _shell_weights(model, result.kmesh.kfrac, member)
-        lo = min(float(eig_ir.min()), float(energies.min())) - 0.5
-        hi = max(float(eig_ir.max()), float(energies.max())) + 0.5
-        dos = density_of_states(eig_ir, result.kmesh, np.linspace(lo, hi, 401), method="tetrahedron",
-                                weights_projected=proj, spin_degeneracy=model.spin_degeneracy,
-                                reciprocal_A=crystal.reciprocal_A)
-        plot_bands(path, energies, result.fermi_level_eV, args.plot, character=character, character_labels=shells,
-                   dos=dos, title=f"{crystal.formula} ({path.lattice_type}), E_F = {result.fermi_level_eV:.3f} eV")
+        plot_band_structure(bs, args.plot)
     if args.json:
         _print_json({
             "file": str(args.file),
@@ -239,13 +200,72 @@ def cmd_bands(args) -> int:
 
 
 # ---------------------------------------------------------------------------------------------- rank
+def _parse_q(text: str):
+    from fractions import Fraction
+
+    from .errors import ParameterError
+
+    try:
+        q = [float(Fraction(x.strip())) for x in text.split(",")]
+    except (ValueError, ZeroDivisionError):
+        q = []
+    if len(q) != 3:
+        raise ParameterError(f'--q must be three numbers or fractions like "1/2,0,0", got {text!r}')
+    return q
+
+
+def _screen_settings(args):
+    from .compare import ScreenSettings
+
+    return ScreenSettings(
+        kspacing_per_A=args.kspacing,
+        pair_exponent=args.pair_exponent,
+        bulk_modulus_GPa=args.bulk_modulus_GPa,
+        threshold_meV_per_atom=args.threshold_meV,
+        symprec_A=args.symprec,
+    )
+
+
+def _parameters_for(crystal, path):
+    from .params import default_parameters, load_parameters
+
+    elements = sorted(set(crystal.species))
+    return load_parameters(path, elements) if path else default_parameters(elements)
+
+
 def cmd_rank(args) -> int:
-    raise NotImplementedError("screener rank is being written")
+    """Rank candidate distortions of one structure; table on stdout (or JSON with --json)."""
+    from .rank import rank
+    from .report import format_rank_text, write_optimum_structures
+
+    crystal = _read(args)
+    params = _parameters_for(crystal, args.params)
+    q_extra = [_parse_q(q) for q in (args.q or [])]
+    result = rank(crystal, params, generators=args.generator, extra_q=q_extra, settings=_screen_settings(args),
+                  progress=not args.json and not args.quiet)
+    if args.csv:
+        result.table().to_csv(args.csv, index=False)
+    written = write_optimum_structures(result, args.write_structures) if args.write_structures else []
+    if args.json:
+        out = result.to_dict()
+        out["file"] = str(args.file)
+        if written:
+            out["structures_written"] = [str(p) for p in written]
+        _print_json(out)
+    else:
+        print(format_rank_text(result, source=str(args.file)))
+        for p in written:
+            print(f"wrote {p}")
+    return 0
 
 
 # ---------------------------------------------------------------------------------------------- demo
 def cmd_demo(args) -> int:
-    raise NotImplementedError("screener demo is being written")
+    """Rank every bundled (invented) demo structure and write a report folder."""
+    from .report import run_demo
+
+    run_demo(args.out, progress=not args.quiet)
+    return 0
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -278,10 +298,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
     p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
     p.add_argument("--write-structures", help="write each optimum as CIF into this folder")
+    p.add_argument("--bulk-modulus-GPa", type=float, help="calibrate the repulsion so the parent has this bulk modulus")
+    p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
+    p.add_argument("--threshold-meV", type=float, default=1.0,
+                   help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_rank)
 
     p = sub.add_parser("demo", help="rank every bundled invented demo structure and write a report folder")
     p.add_argument("--out", default="screener-report", help="report folder (default ./screener-report)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_demo)
     return parser
 

@@ -52,6 +52,8 @@ class RankResult:
     """Safety line for hazardous elements ('' if none)."""
     parent_structure: Crystal
     """The parent structure as screened."""
+    params: object
+    """The ParameterSet used."""
 
     @property
     def fermi_level_eV(self) -> float:
@@ -176,6 +178,7 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         settings=settings,
         safety=safety_note(crystal),
         parent_structure=crystal,
+        params=params,
     )
 
 

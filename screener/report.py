@@ -19,7 +19,7 @@ def format_rank_text(result: RankResult, source: str = "") -> str:
         f"({result.space_group_number}),  {result.n_atoms} atoms/cell,  "
         f"{result.valence_electrons_per_cell:g} valence electrons/cell",
         f"parent: E_F = {result.fermi_level_eV:.3f} eV, gap {result.parent.gap_eV:.3f} eV, "
-        f"pair repulsion A = {result.parent.repulsion_eV * 1e3:.1f} meV/bond, m = {result.parent.pair_exponent:g}",
+        f"pair repulsion A = {result.parent.repulsion_eV:.3f} eV per bond, m = {result.parent.pair_exponent:g}",
         "",
     ]
     table = result.table()
@@ -115,10 +115,10 @@ def write_report(results: dict[str, RankResult], out) -> Path:
 
 def _band_plot(res: RankResult, path: Path, parent: bool, title: str) -> None:
     """Band structure with DOS of the parent or of the best candidate's optimum."""
-    from . import plots
+    from .bands import band_structure, plot_band_structure
 
-    plots.plot_structure_bands(res.candidates[0].structure if not parent else res.parent_structure, path,
-                               title=title)
+    crystal = res.parent_structure if parent else res.candidates[0].structure
+    plot_band_structure(band_structure(crystal, res.params, symprec=res.settings.symprec_A), path, title=title)
 
 
 def run_demo(out="screener-report", progress: bool = True) -> dict[str, RankResult]:

@@ -1,0 +1,82 @@
+"""Band structure along a path with orbital character, and its figure (used by `screener bands` and reports)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .structure import Crystal
+from .symmetry import SYMPREC_A
+
+
+@dataclass(frozen=True, eq=False)
+class BandStructure:
+    """Eigenvalues along a k-path, their orbital-shell character, and the mesh ground state."""
+
+    crystal: Crystal
+    """The structure."""
+    model: object
+    """The TightBindingModel used."""
+    path: object
+    """kspace.BandPath: k-points (fractions of the input cell's reciprocal vectors), ticks, labels."""
+    energies_eV: np.ndarray
+    """(nk, nb) absolute band energies along the path, ascending, eV."""
+    shells: tuple[str, ...]
+    """Orbital shells of the basis in order ('s', 'p', 'd')."""
+    character: np.ndarray
+    """(nk, nb, n_shells) weight of each shell in every state (sums to 1)."""
+    ground_state: object
+    """electrons.BandEnergyResult on the default mesh (Fermi level, band energy, gap)."""
+
+
+def orbital_groups(model) -> tuple[tuple[str, ...], np.ndarray]:
+    """Shell letters of the basis ('s', 'p', 'd', in order of appearance) and (norb, ng) 0/1 membership."""
+    shells = [str(name)[0] for name in model.orbital_name]
+    names = tuple(dict.fromkeys(shells))
+    return names, np.array([[s == g for g in names] for s in shells], dtype=float)
+
+
+def shell_weights(model, kfrac, member) -> tuple[np.ndarray, np.ndarray]:
+    """Eigenvalues (nk, nb) and the weight of each orbital shell in every state (nk, nb, ng)."""
+    vals, vecs = model.eigensystem(kfrac)
+    # eigenvectors are columns: |c_ob|² summed over the orbitals of each shell (all sites)
+    return np.asarray(vals), np.einsum("kob,og->kbg", np.abs(vecs) ** 2, member)
+
+
+def band_structure(crystal: Crystal, params=None, *, kpoints=None, symprec: float = SYMPREC_A) -> BandStructure:
+    """Bands along the default special-point path (or explicit ``kpoints``) and the Fermi level from a mesh."""
+    from .electrons import solve_on_mesh
+    from .kspace import band_path
+    from .model import build_model
+    from .params import default_parameters
+
+    if params is None:
+        params = default_parameters(list(dict.fromkeys(crystal.species)))
+    model = build_model(crystal, params)
+    path = band_path(crystal, symprec=symprec, kpoints=kpoints)
+    ground = solve_on_mesh(model, symprec=symprec)
+    shells, member = orbital_groups(model)
+    energies, character = shell_weights(model, path.kfrac, member)
+    return BandStructure(crystal, model, path, energies, shells, character, ground)
+
+
+def plot_band_structure(bs: BandStructure, out_png, title: str | None = None) -> Path:
+    """Band structure coloured by orbital character with the (projected) tetrahedron DOS beside it."""
+    from .electrons import density_of_states
+    from .plots import plot_bands
+
+    result = bs.ground_state
+    eig_ir = np.asarray(result.eigenvalues_eV)
+    _, member = orbital_groups(bs.model)
+    _, proj = shell_weights(bs.model, result.kmesh.kfrac, member)
+    lo = min(float(eig_ir.min()), float(bs.energies_eV.min())) - 0.5
+    hi = max(float(eig_ir.max()), float(bs.energies_eV.max())) + 0.5
+    dos = density_of_states(eig_ir, result.kmesh, np.linspace(lo, hi, 401), method="tetrahedron",
+                            weights_projected=proj, spin_degeneracy=bs.model.spin_degeneracy,
+                            reciprocal_A=bs.crystal.reciprocal_A)
+    if title is None:
+        title = f"{bs.crystal.formula} ({bs.path.lattice_type}), E_F = {result.fermi_level_eV:.3f} eV"
+    return plot_bands(bs.path, bs.energies_eV, result.fermi_level_eV, out_png, character=bs.character,
+                      character_labels=list(bs.shells), dos=dos, title=title)
