@@ -224,7 +224,11 @@ def _gap(e: np.ndarray, n_electrons: float, spin_degeneracy: int) -> tuple[float
         return 0.0, np.nan, np.nan
     vbm = float(e[:, nf - 1].max())
     cbm = float(e[:, nf].min())
-    return max(0.0, cbm - vbm), vbm, cbm
+    gap = cbm - vbm
+    # below this the "gap" is rounding at a band crossing (common practice, no source)
+    if gap <= 1e-9 * max(1.0, float(e.max() - e.min())):
+        return 0.0, np.nan, np.nan
+    return gap, vbm, cbm
 
 
 # ============================================================================================== Fermi level
@@ -558,12 +562,17 @@ class _TetrahedronGrid:
         """(M, nb) one-spin occupation weights folded onto the irreducible points (Σ = count(eps))."""
         nb = self.n_bands
         acc = np.zeros(self.n_ir * nb)
+        # Tetrahedra flattened along a single-point mesh direction have a DOS that jumps at a corner energy, and
+        # E_F often sits exactly on one (e.g. at a folded band crossing on an even mesh): take the mean of the
+        # two one-sided limits there. Elsewhere D_T is continuous and the mean equals the value.
+        h = 1e-9 * max(1.0, self.emax - self.emin)
         for s in self._chunks():
             e = self.e[s]
             w = _tet_weights(e, eps)
             if blochl:
                 # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
-                w = w + _tet_dos(e, eps)[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+                d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
+                w = w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
             rows = np.arange(s.start, s.stop)
             tet, band = np.divmod(rows, nb)
             corner = np.take_along_axis(self.corner_ir[tet], self.order[s].astype(np.intp), axis=1)
@@ -638,6 +647,8 @@ def integrate(eigs_ir_eV, kmesh: IrreducibleMesh, n_electrons, *, method="tetrah
         mu = grid.fermi_level(n, g)
         if n >= g * e.shape[1]:
             occ = g * np.broadcast_to(w[:, None], e.shape).copy()
+        elif n <= 0:
+            occ = np.zeros_like(e)
         else:
             occ = g * grid.occupations(mu, blochl=blochl)
         energy = float(np.sum(occ * e))

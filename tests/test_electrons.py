@@ -410,3 +410,13 @@ def test_model_spin_orbit_basis_gives_the_same_band_energy():
     b = solve_on_mesh(soc, mesh=(10, 10, 10))
     assert b.band_energy_eV == pytest.approx(a.band_energy_eV, abs=1e-9)
     assert b.fermi_level_eV == pytest.approx(a.fermi_level_eV, abs=1e-9)
+
+
+def test_folded_chain_matches_the_primitive_chain_on_an_even_mesh():
+    # the same chain described with two equal sites per cell (bands folded at k = 1/2, where E_F sits on a grid
+    # point of an even mesh) must give the same band energy per site as the one-site cell on the doubled mesh:
+    # the linear interpolation is identical (exact identity of the sampling; no source)
+    one = solve_on_mesh(chain(t_eV=-1.3), mesh=(64, 1, 1))
+    two = solve_on_mesh(SSHChain(t1=-1.3, t2=-1.3), mesh=(32, 1, 1))
+    assert two.band_energy_eV / 2 == pytest.approx(one.band_energy_eV, abs=1e-9)
+    assert two.gap_eV == 0.0
