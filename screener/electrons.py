@@ -59,7 +59,7 @@ class BandEnergyResult:
     n_kpoints_irreducible: int
     """Number of irreducible k-points the eigenvalues were computed at."""
     smeared_energy_eV: float = float("nan")
-    """Raw Σ w f ε per cell, eV, before any σ→0 correction (equal to the band energy for the tetrahedron method)."""
+    """Raw Σ w f ε per cell, eV, before any σ→0 correction (the band energy itself for the tetrahedron method)."""
     spin_degeneracy: int = 2
     """Electrons per orbital state: 2, or 1 when spin–orbit coupling doubles the basis."""
     occupations: np.ndarray | None = None
@@ -182,7 +182,9 @@ def _check_eigs(eigs_eV, weights=None) -> np.ndarray:
     if e.ndim == 1:
         e = e[:, None]
     if e.ndim != 2 or e.size == 0:
-        raise ParameterError(f"eigenvalues must be a non-empty (n_kpoints, n_bands) array, got shape {np.shape(eigs_eV)}")
+        raise ParameterError(
+            f"eigenvalues must be a non-empty (n_kpoints, n_bands) array, got shape {np.shape(eigs_eV)}"
+        )
     if not np.all(np.isfinite(e)):
         raise ParameterError("eigenvalues contain NaN or infinite values; check the Hamiltonian parameters")
     drop = np.diff(e, axis=1)
@@ -540,10 +542,6 @@ class _TetrahedronGrid:
     def count(self, eps: float) -> float:
         """States per cell (one spin) below eps."""
         return self.volume * float(sum(_tet_count(self.e[s], eps).sum() for s in self._chunks()))
-
-    def dos(self, eps: float) -> float:
-        """States per eV per cell (one spin) at eps."""
-        return self.volume * float(sum(_tet_dos(self.e[s], eps).sum() for s in self._chunks()))
 
     def fermi_level(self, n_electrons: float, g: int) -> float:
         if n_electrons <= 0:
