@@ -28,14 +28,16 @@ class ScreenSettings:
     """Starting k-point spacing, Å⁻¹ (2π included)."""
     convergence_meV_per_atom: float = 0.5
     """ΔE at the optimum is converged when a finer mesh changes it by less than this, meV/atom."""
-    max_refinements: int = 5
+    max_refinements: int = 6
     """Mesh refinements tried before a candidate is flagged unconverged."""
     max_kpoints: int = 150_000
     """Largest full k-mesh (points) a refinement may use; beyond it the candidate is flagged unconverged."""
     refine_factor: float = 0.7
     """Each refinement multiplies the k-spacing by this factor."""
     max_amplitude_fraction: float = 0.12
-    """Largest amplitude scanned, as a fraction of the parent's shortest bond."""
+    """Largest amplitude of the first scan, as a fraction of the parent's shortest bond."""
+    amplitude_limit_fraction: float = 0.25
+    """Hard limit of the scan when the energy keeps falling, as a fraction of the shortest bond."""
     n_scan: int = 7
     """Amplitudes in the coarse scan (λ = 0 excluded)."""
     method: str = "tetrahedron"
@@ -268,14 +270,24 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
         return cache[key]
 
     e0b, e0e, _ = e_at(0.0)
-    scan = np.array([e_at(x)[:2] for x in lams])
-    band = (scan[:, 0] - e0b) * 1e3
-    elas = (scan[:, 1] - e0e) * 1e3
-    total = band + elas
-    k = int(np.argmin(total))
+    step = lams[1]
+    while True:
+        scan = np.array([e_at(x)[:2] for x in lams])
+        band = (scan[:, 0] - e0b) * 1e3
+        elas = (scan[:, 1] - e0e) * 1e3
+        total = band + elas
+        k = int(np.argmin(total))
+        # energy still falling at the last amplitude: extend the scan, up to the hard limit
+        if k < len(lams) - 1 or lams[-1] + step > settings.amplitude_limit_fraction * d_min + 1e-12:
+            break
+        lams = np.append(lams, lams[-1] + step * np.arange(1, int(settings.n_scan) // 2 + 2))
+        lams = lams[lams <= settings.amplitude_limit_fraction * d_min + 1e-12]
+    lam_max = float(lams[-1])
     note = []
     if k == len(lams) - 1:
-        note.append(f"optimum at the edge of the scan (λ ≥ {lam_max:.3f} Å): the distortion may be larger")
+        note.append(f"optimum at the edge of the scan (λ ≥ {lam_max:.3f} Å = "
+                    f"{settings.amplitude_limit_fraction:g} of the shortest bond): the distortion may be larger "
+                    "than this model can follow")
         lam_opt = float(lams[k])
     else:
         lo, hi = lams[max(k - 1, 0)], lams[k + 1]
