@@ -15,6 +15,7 @@ Energies are in eV, counts are electrons (or states) per cell including the spin
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from scipy.optimize import brentq
@@ -494,8 +495,33 @@ def _pair_blocks(lo: np.ndarray, hi: np.ndarray, max_pairs: int = 4 * _CHUNK_ROW
         start = stop
 
 
+@lru_cache(maxsize=8)
+def _corner_table(mesh: tuple[int, int, int], flip: tuple[int, int, int]) -> np.ndarray:
+    """(6N, 4) row-major grid index of every tetrahedron corner; tetrahedron 6p + j is path j from point p.
+
+    Depends only on the mesh and the chosen diagonal, so it is kept between calls (read-only).
+    """
+    offsets = np.bitwise_xor(_PATHS, np.asarray(flip, dtype=int)[None, None, :])  # (6, 4, 3)
+    n_full = int(np.prod(mesh))
+    base = np.unravel_index(np.arange(n_full), mesh)
+    table = np.zeros((n_full, 6, 4), dtype=np.int64)
+    for axis in range(3):  # three axes, not k-points
+        coord = np.mod(base[axis][:, None, None] + offsets[None, :, :, axis], mesh[axis])
+        table *= mesh[axis]
+        table += coord
+    table = table.reshape(-1, 4)
+    table.setflags(write=False)
+    return table
+
+
 class _TetrahedronGrid:
-    """Band × tetrahedron rows of the full mesh, corner energies sorted, ready for repeated integration."""
+    """Band × tetrahedron rows of the full mesh, ready for repeated integration.
+
+    Row r = t * nb + b is band b on tetrahedron t. For every row only its lowest and highest corner energy is
+    stored: at any energy ε almost all rows lie wholly below (count 1, weight ¼ per corner) or wholly above
+    (nothing), and only the few straddling ε need their four corners gathered, sorted and put through Blöchl's
+    formulas. That keeps the work per call close to one pass over the rows.
+    """
 
     def __init__(self, eigs_ir: np.ndarray, kmesh: IrreducibleMesh, reciprocal_A=None):
         mesh = np.asarray(kmesh.mesh, dtype=int)
@@ -511,96 +537,158 @@ class _TetrahedronGrid:
                 f"got eigenvalues at {eigs_ir.shape[0]} k-points but the mesh has {len(kmesh.ir_index)} irreducible "
                 "points; compute them at kmesh.kfrac"
             )
-        addr = np.mod(np.asarray(kmesh.grid_address, dtype=int), mesh)
-        flat = np.ravel_multi_index(addr.T, tuple(mesh))
-        if len(np.unique(flat)) != n_full:
+        addr = np.mod(np.asarray(kmesh.grid_address, dtype=np.int64), mesh)
+        flat = (addr[:, 0] * mesh[1] + addr[:, 1]) * mesh[2] + addr[:, 2]
+        if np.any(np.bincount(flat, minlength=n_full) != 1):
             raise ParameterError(f"k-mesh grid addresses do not cover the {tuple(mesh)} grid once each")
         # grid point (row-major index) -> irreducible point
         grid_to_ir = np.empty(n_full, dtype=np.int64)
         grid_to_ir[flat] = np.asarray(kmesh.mapping, dtype=np.int64)
-        offsets = _tetra_offsets(mesh, reciprocal_A)  # (6, 4, 3)
-        base = np.stack(np.unravel_index(np.arange(n_full), tuple(mesh)), 1)  # (N, 3)
-        corners = np.mod(base[:, None, None, :] + offsets[None], mesh)  # (N, 6, 4, 3)
-        corner_grid = np.ravel_multi_index(np.moveaxis(corners.reshape(-1, 4, 3), -1, 0), tuple(mesh))
-        self.corner_ir = grid_to_ir[corner_grid]  # (T, 4) irreducible index of each tetrahedron corner
+        flip = tuple(int(x) for x in _tetra_offsets(mesh, reciprocal_A)[0, 0])  # path 0 starts at the flip
+        self.corner_ir = grid_to_ir[_corner_table(tuple(int(m) for m in mesh), flip)]  # (T, 4)
         self.n_tet = len(self.corner_ir)
         self.n_bands = nb
         self.n_ir = eigs_ir.shape[0]
+        self.n_rows = self.n_tet * nb
         self.volume = 1.0 / self.n_tet  # volume fraction of one tetrahedron
-        # rows r = t * nb + b; corner energies sorted ascending, and which corner each sorted slot came from
-        e = np.moveaxis(eigs_ir[self.corner_ir], 1, 2).reshape(-1, 4)  # (T*nb, 4)
-        self.order = np.argsort(e, axis=1, kind="stable").astype(np.int8)
-        self.e = np.take_along_axis(e, self.order.astype(np.intp), axis=1)
-        self.emin = float(self.e[:, 0].min())
-        self.emax = float(self.e[:, 3].max())
         self.eigs_ir = eigs_ir
+        # lowest and highest corner energy of each row, built corner by corner so no (T, 4, nb) array exists
+        lo = np.take(eigs_ir, self.corner_ir[:, 0], axis=0)
+        hi = lo.copy()
+        buf = np.empty_like(lo)
+        for c in (1, 2, 3):  # the other three corners
+            np.take(eigs_ir, self.corner_ir[:, c], axis=0, out=buf)
+            np.minimum(lo, buf, out=lo)
+            np.maximum(hi, buf, out=hi)
+        self.row_min = lo.reshape(-1)
+        self.row_max = hi.reshape(-1)
+        self.emin = float(self.row_min.min())
+        self.emax = float(self.row_max.max())
+        self._corner_count = None
 
-    def _chunks(self):
-        for s in range(0, len(self.e), _CHUNK_ROWS):
-            yield slice(s, min(s + _CHUNK_ROWS, len(self.e)))
+    # ------------------------------------------------------------------------------------------ row access
+    def _sorted_rows(self, rows: np.ndarray):
+        """(n, 4) ascending corner energies of ``rows``, the irreducible point of each sorted slot, the band."""
+        tet, band = np.divmod(rows, self.n_bands)
+        corner = self.corner_ir[tet]
+        e = self.eigs_ir[corner, band[:, None]]
+        # stable, so tied corners keep their path order (which corner gets which weight at a tie)
+        order = np.argsort(e, axis=1, kind="stable")
+        return np.take_along_axis(e, order, axis=1), np.take_along_axis(corner, order, axis=1), band
+
+    def _straddling(self, lo: float, hi: float) -> np.ndarray:
+        """Rows whose corner range overlaps (lo, hi): the only ones not wholly below lo or above hi."""
+        return np.flatnonzero((self.row_max > lo) & (self.row_min < hi))
 
     def count(self, eps: float) -> float:
         """States per cell (one spin) below eps."""
-        return self.volume * float(sum(_tet_count(self.e[s], eps).sum() for s in self._chunks()))
+        rows = self._straddling(eps, eps)
+        e, _, _ = self._sorted_rows(rows)
+        n_below = np.count_nonzero(self.row_max <= eps)
+        return self.volume * (n_below + float(_tet_count(e, eps).sum()))
+
+    # ------------------------------------------------------------------------------------------ Fermi level
+    def _bracket(self, states: float) -> tuple[float, float]:
+        """Energies lo < hi with count(lo) ≤ states ≤ count(hi), from the row extremes alone.
+
+        A row counts fully above its top corner and not at all below its bottom one, so
+        #(row_max ≤ ε) ≤ count(ε)/V ≤ #(row_min < ε). With R = states/V, the ⌈R⌉-th smallest row minimum
+        is a lower and the (⌊R⌋+1)-th smallest row maximum an upper bound; one row of margin on each side
+        keeps the bracket valid when R is an integer up to rounding.
+        """
+        r = states * self.n_tet
+        j = min(max(int(np.ceil(r)) - 1, 0), self.n_rows - 1)
+        k = min(max(int(np.floor(r)), 0), self.n_rows - 1)
+        lo = float(np.partition(self.row_min, j)[j])
+        hi = float(np.partition(self.row_max, k)[k])
+        return lo, hi
 
     def fermi_level(self, n_electrons: float, g: int) -> float:
         if n_electrons <= 0:
             return self.emin
         if n_electrons >= g * self.n_bands:
             return self.emax
-        mu = _solve_count(lambda m: g * self.count(m), n_electrons, self.emin - 1e-6, self.emax + 1e-6,
-                          "the tetrahedron method")
         gap, vbm, cbm = _gap(self.eigs_ir, n_electrons, g)
         if gap > 0:
             # the linear-tetrahedron count is exactly flat between the band extremes of the mesh
-            mu = 0.5 * (vbm + cbm)
-        return float(mu)
+            return float(0.5 * (vbm + cbm))
+        lo, hi = self._bracket(n_electrons / g)
+        lo, hi = min(lo, hi), max(lo, hi)
+        rows = self._straddling(lo, hi)
+        e, _, _ = self._sorted_rows(rows)
+        n_below = np.count_nonzero(self.row_max <= lo)
 
+        def count(m):
+            return g * self.volume * (n_below + float(_tet_count(e, m).sum()))
+
+        if not count(lo) <= n_electrons <= count(hi):  # only if rounding defeated the margins: take everything
+            lo, hi = self.emin - 1e-6, self.emax + 1e-6
+            e, _, _ = self._sorted_rows(np.arange(self.n_rows))
+            n_below = 0
+        return _solve_count(count, n_electrons, lo, hi, "the tetrahedron method")
+
+    # ------------------------------------------------------------------------------------------ occupations
     def occupations(self, eps: float, blochl: bool = True) -> np.ndarray:
         """(M, nb) one-spin occupation weights folded onto the irreducible points (Σ = count(eps))."""
-        nb = self.n_bands
-        acc = np.zeros(self.n_ir * nb)
+        nb, T = self.n_bands, self.n_tet
         # Tetrahedra flattened along a single-point mesh direction have a DOS that jumps at a corner energy, and
         # E_F often sits exactly on one (e.g. at a folded band crossing on an even mesh): take the mean of the
         # two one-sided limits there. Elsewhere D_T is continuous and the mean equals the value.
         h = 1e-9 * max(1.0, self.emax - self.emin)
-        for s in self._chunks():
-            e = self.e[s]
+        # rows wholly below eps − h: weight ¼ per corner and zero DOS within ±h, so no Blöchl correction
+        full = (self.row_max <= eps - h).reshape(T, nb)
+        if self._corner_count is None:
+            self._corner_count = np.bincount(self.corner_ir.ravel(), minlength=self.n_ir).astype(float)
+        acc = np.zeros((nb, self.n_ir))
+        n_full = np.count_nonzero(full, axis=0)
+        for b in np.flatnonzero(n_full):  # loop over bands only; a band is usually wholly full or empty
+            if n_full[b] == T:
+                acc[b] = 0.25 * self._corner_count
+            elif 2 * n_full[b] >= T:
+                acc[b] = 0.25 * (self._corner_count
+                                 - np.bincount(self.corner_ir[~full[:, b]].ravel(), minlength=self.n_ir))
+            else:
+                acc[b] = 0.25 * np.bincount(self.corner_ir[full[:, b]].ravel(), minlength=self.n_ir)
+        acc = np.ascontiguousarray(acc.T).reshape(-1)
+        rows = np.flatnonzero(~full.reshape(-1) & (self.row_min < eps + h))
+        for s in range(0, len(rows), _CHUNK_ROWS):  # memory-bounded blocks of the straddling rows
+            e, corner, band = self._sorted_rows(rows[s:s + _CHUNK_ROWS])
             w = _tet_weights(e, eps)
             if blochl:
                 # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
                 d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
                 w = w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
-            rows = np.arange(s.start, s.stop)
-            tet, band = np.divmod(rows, nb)
-            corner = np.take_along_axis(self.corner_ir[tet], self.order[s].astype(np.intp), axis=1)
             idx = corner * nb + band[:, None]
             acc += np.bincount(idx.ravel(), weights=w.ravel(), minlength=self.n_ir * nb)
         return self.volume * acc.reshape(self.n_ir, nb)
 
+    # ------------------------------------------------------------------------------------------ DOS
     def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):
         """(ne,) one-spin DOS, (ne,) count and (ne, nproj) projected DOS on an energy grid."""
         energies = np.asarray(energies, dtype=float)
-        ne, nb = len(energies), self.n_bands
+        ne = len(energies)
         order_e = np.argsort(energies)
         es = energies[order_e]
         nproj = 0 if proj_ir is None else proj_ir.shape[2]
         pdos = np.zeros((ne, nproj))
         # a row counts fully at energies ≥ its top corner; energies strictly inside (e1, e4) are evaluated as
         # (row, energy) pairs, processed in blocks of bounded pair count so memory stays bounded
-        lo = np.searchsorted(es, self.e[:, 0], side="right")
-        hi = np.searchsorted(es, self.e[:, 3], side="left")
+        lo = np.searchsorted(es, self.row_min, side="right")
+        hi = np.searchsorted(es, self.row_max, side="left")
         below = np.bincount(hi, minlength=ne + 1)[:ne].cumsum().astype(float)
         dos = np.zeros(ne)
-        for rows, eidx in _pair_blocks(lo, hi):
-            er, x = self.e[rows], es[eidx]
+        active = np.flatnonzero(hi > lo)
+        for sub, eidx in _pair_blocks(lo[active], hi[active]):
+            # pairs come ordered by row: sort each block's rows once, then spread them over their pairs
+            first = int(sub[0])
+            e_blk, corner_blk, band_blk = self._sorted_rows(active[first:int(sub[-1]) + 1])
+            loc = sub - first
+            er, x = e_blk[loc], es[eidx]
             below += np.bincount(eidx, weights=_tet_count(er, x), minlength=ne)
             if nproj:
                 cw = _tet_corner_dos(er, x)  # (p, 4)
                 dos += np.bincount(eidx, weights=cw.sum(1), minlength=ne)
-                tet, band = np.divmod(rows, nb)
-                corner = np.take_along_axis(self.corner_ir[tet], self.order[rows].astype(np.intp), axis=1)
-                contrib = np.einsum("pc,pcj->pj", cw, proj_ir[corner, band[:, None], :])
+                contrib = np.einsum("pc,pcj->pj", cw, proj_ir[corner_blk[loc], band_blk[loc][:, None], :])
                 for j in range(nproj):  # loop over projection channels only
                     pdos[:, j] += np.bincount(eidx, weights=contrib[:, j], minlength=ne)
             else:
