@@ -45,8 +45,13 @@ def shell_weights(model, kfrac, member) -> tuple[np.ndarray, np.ndarray]:
     return np.asarray(vals), np.einsum("kob,og->kbg", np.abs(vecs) ** 2, member)
 
 
-def band_structure(crystal: Crystal, params=None, *, kpoints=None, symprec: float = SYMPREC_A) -> BandStructure:
-    """Bands along the default special-point path (or explicit ``kpoints``) and the Fermi level from a mesh."""
+def band_structure(crystal: Crystal, params=None, *, kpoints=None, symprec: float = SYMPREC_A,
+                   bonds=None) -> BandStructure:
+    """Bands along the default special-point path (or explicit ``kpoints``) and the Fermi level from a mesh.
+
+    ``bonds`` fixes which pairs interact (as the comparator does for a distorted structure); by default the
+    parameter rules choose them.
+    """
     from .electrons import solve_on_mesh
     from .kspace import band_path
     from .model import build_model
@@ -54,8 +59,8 @@ def band_structure(crystal: Crystal, params=None, *, kpoints=None, symprec: floa
 
     if params is None:
         params = default_parameters(list(dict.fromkeys(crystal.species)))
-    model = build_model(crystal, params)
-    path = band_path(crystal, symprec=symprec, kpoints=kpoints)
+    model = build_model(crystal, params, bonds=bonds)
+    path = band_path(crystal, symprec=symprec, kpoints=kpoints, periodic=model.periodic)
     ground = solve_on_mesh(model, symprec=symprec)
     shells, member = orbital_groups(model)
     energies, character = shell_weights(model, path.kfrac, member)

@@ -325,6 +325,12 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("screener: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # output piped into e.g. `head`, which stopped reading: not an error of ours
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":

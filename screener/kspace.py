@@ -265,7 +265,7 @@ def _tabulated(family: str, centring: str, conv: np.ndarray, a: float, b: float,
 
 
 def band_path(crystal: Crystal, points_per_inv_A: float = 40.0, symprec: float = 1e-3, *,
-              kpoints=None, min_points_per_leg: int = 4) -> BandPath:
+              kpoints=None, min_points_per_leg: int = 4, periodic=None) -> BandPath:
     """Band path through the special points of ``crystal`` (Setyawan & Curtarolo 2010) or through given points.
 
     Parameters
@@ -282,6 +282,9 @@ def band_path(crystal: Crystal, points_per_inv_A: float = 40.0, symprec: float =
         vectors. Consecutive vertices are joined by straight legs; a single vertex gives a single k-point.
     min_points_per_leg : int
         Fewest intervals on any leg, so short legs in a large cell still show curvature.
+    periodic : three bools, optional
+        Lattice directions the model is periodic along. Along the others (vacuum) bands do not disperse, so the
+        default path keeps only special points with no component along them.
     """
     if not (points_per_inv_A > 0):
         raise ParameterError(f"points_per_inv_A must be positive, got {points_per_inv_A!r}")
@@ -293,6 +296,9 @@ def band_path(crystal: Crystal, points_per_inv_A: float = 40.0, symprec: float =
     else:
         lattice_type, points, path = special_points(crystal, symprec)
         pieces = [[(lab, points[lab]) for lab in piece] for piece in path]
+        if periodic is not None and not all(periodic):
+            pieces = _periodic_pieces(pieces, ~np.asarray(periodic, dtype=bool))
+            lattice_type = f"{lattice_type}, periodic directions only"
     rec2pi = 2 * np.pi * crystal.reciprocal_A
     kf, xs, segments, vertices = [], [], [], []
     x0, n0 = 0.0, 0
@@ -338,6 +344,17 @@ def band_path(crystal: Crystal, points_per_inv_A: float = 40.0, symprec: float =
         lattice_type=lattice_type,
         points_frac={k: np.asarray(v, dtype=float) for k, v in points.items()},
     )
+
+
+def _periodic_pieces(pieces, flat: np.ndarray):
+    """Drop special points with a component along non-periodic directions; merge repeats; keep ≥ 2-point pieces."""
+    kept = []
+    for piece in pieces:
+        pts = [(lab, v) for lab, v in piece if np.allclose(np.asarray(v, dtype=float)[flat], 0.0, atol=1e-9)]
+        pts = [p for n, p in enumerate(pts) if n == 0 or p[0] != pts[n - 1][0]]
+        if len(pts) > 1:
+            kept.append(pts)
+    return kept or [[("Γ", np.zeros(3))]]
 
 
 def parse_kpoints(text) -> tuple[list[str], np.ndarray]:

@@ -77,6 +77,7 @@ class RankResult:
                 "shell_distances_A": " / ".join(f"{d:.3f}" for d in c.shell_distances_A),
                 "verdict": c.verdict,
                 "converged": c.converged,
+                "survives_stiffer_repulsion": c.survives_stiffer_repulsion,
                 "kmesh": "x".join(str(k) for k in c.kmesh),
                 "note": c.note,
             }
@@ -115,6 +116,7 @@ class RankResult:
                     "shell_distances_A": list(c.shell_distances_A),
                     "verdict": c.verdict,
                     "converged": c.converged,
+                    "survives_stiffer_repulsion": c.survives_stiffer_repulsion,
                     "kmesh": list(c.kmesh),
                     "note": c.note,
                     "scan": {

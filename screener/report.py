@@ -89,16 +89,7 @@ def write_report(results: dict[str, RankResult], out) -> Path:
         texts.append(format_rank_text(res, source=name))
         blob[name] = res.to_dict()
         stem = Path(name).stem
-        curves = [
-            {
-                "label": f"{c.generator} q={c.q_label} → {c.space_group_symbol}",
-                "amplitude_A": c.scan_amplitude_A,
-                "delta_E_meV_per_atom": c.scan_delta_E_meV_per_atom,
-                "delta_E_band_meV_per_atom": c.scan_delta_E_band_meV_per_atom,
-                "delta_E_elastic_meV_per_atom": c.scan_delta_E_elastic_meV_per_atom,
-            }
-            for c in res.candidates
-        ]
+        curves = list(res.candidates)
         if curves:
             plots.plot_energy_curves(curves, out / f"{stem}_energy_curves.png",
                                      title=f"{res.formula} ({name}): candidate distortions")
@@ -117,8 +108,11 @@ def _band_plot(res: RankResult, path: Path, parent: bool, title: str) -> None:
     """Band structure with DOS of the parent or of the best candidate's optimum."""
     from .bands import band_structure, plot_band_structure
 
-    crystal = res.parent_structure if parent else res.candidates[0].structure
-    plot_band_structure(band_structure(crystal, res.params, symprec=res.settings.symprec_A), path, title=title)
+    # the best candidate keeps the parent's bonds (as in the comparator), so its bands match its energy
+    best = res.candidates[0]
+    crystal, bonds = (res.parent_structure, None) if parent else (best.structure, best.bonds)
+    bs = band_structure(crystal, res.params, symprec=res.settings.symprec_A, bonds=bonds)
+    plot_band_structure(bs, path, title=title)
 
 
 def run_demo(out="screener-report", progress: bool = True) -> dict[str, RankResult]:
