@@ -497,21 +497,54 @@ def _pair_blocks(lo: np.ndarray, hi: np.ndarray, max_pairs: int = 4 * _CHUNK_ROW
 
 @lru_cache(maxsize=8)
 def _corner_table(mesh: tuple[int, int, int], flip: tuple[int, int, int]) -> np.ndarray:
-    """(6N, 4) row-major grid index of every tetrahedron corner; tetrahedron 6p + j is path j from point p.
+    """(6N, 4) row-major grid index of every tetrahedron corner; tetrahedron jN + p is path j from point p.
 
     Depends only on the mesh and the chosen diagonal, so it is kept between calls (read-only).
     """
     offsets = np.bitwise_xor(_PATHS, np.asarray(flip, dtype=int)[None, None, :])  # (6, 4, 3)
     n_full = int(np.prod(mesh))
     base = np.unravel_index(np.arange(n_full), mesh)
-    table = np.zeros((n_full, 6, 4), dtype=np.int64)
+    table = np.zeros((6, n_full, 4), dtype=np.int64)
     for axis in range(3):  # three axes, not k-points
-        coord = np.mod(base[axis][:, None, None] + offsets[None, :, :, axis], mesh[axis])
+        coord = np.mod(base[axis][None, :, None] + offsets[:, None, :, axis], mesh[axis])
         table *= mesh[axis]
         table += coord
     table = table.reshape(-1, 4)
     table.setflags(write=False)
     return table
+
+
+def _row_extremes(e_full: np.ndarray, mesh, flip) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest and highest corner energy of every band × tetrahedron row, each (T·nb,), row (jN + p)·nb + b.
+
+    All six tetrahedra of a grid cube share the flipped main diagonal, so the grid is padded periodically once,
+    each cube corner is a shifted view of it, and the diagonal's extremes are shared by the six.
+    """
+    nb = e_full.shape[1]
+    m = tuple(int(x) for x in mesh)
+    grid = e_full.reshape(m + (nb,))
+    pad = np.empty((m[0] + 1, m[1] + 1, m[2] + 1, nb))
+    pad[:-1, :-1, :-1] = grid
+    pad[-1, :-1, :-1] = grid[0]
+    pad[:, -1, :-1] = pad[:, 0, :-1]
+    pad[:, :, -1] = pad[:, :, 0]
+    f = int(flip[0]) | int(flip[1]) << 1 | int(flip[2]) << 2  # cube-corner number of the diagonal's start
+
+    def corner(c):  # view: energies at cube corner c of every grid point, (m0, m1, m2, nb)
+        x, y, z = (int(v) for v in _CORNER_BITS[c])
+        return pad[x:x + m[0], y:y + m[1], z:z + m[2]]
+
+    dmin = np.minimum(corner(f), corner(7 ^ f))
+    dmax = np.maximum(corner(f), corner(7 ^ f))
+    row_min = np.empty((6,) + m + (nb,))
+    row_max = np.empty((6,) + m + (nb,))
+    bits = (_PATHS ^ np.asarray(flip)[None, None, :]) @ np.array([1, 2, 4])  # (6, 4) cube-corner numbers
+    for j, (_, c1, c2, _) in enumerate(bits):  # the six tetrahedra of a cube
+        np.minimum(corner(c1), corner(c2), out=row_min[j])
+        np.minimum(row_min[j], dmin, out=row_min[j])
+        np.maximum(corner(c1), corner(c2), out=row_max[j])
+        np.maximum(row_max[j], dmax, out=row_max[j])
+    return row_min.reshape(-1), row_max.reshape(-1)
 
 
 class _TetrahedronGrid:
@@ -545,23 +578,17 @@ class _TetrahedronGrid:
         grid_to_ir = np.empty(n_full, dtype=np.int64)
         grid_to_ir[flat] = np.asarray(kmesh.mapping, dtype=np.int64)
         flip = tuple(int(x) for x in _tetra_offsets(mesh, reciprocal_A)[0, 0])  # path 0 starts at the flip
-        self.corner_ir = grid_to_ir[_corner_table(tuple(int(m) for m in mesh), flip)]  # (T, 4)
+        table = _corner_table(tuple(int(m) for m in mesh), flip)
+        identity = len(grid_to_ir) == eigs_ir.shape[0] and np.array_equal(grid_to_ir, np.arange(n_full))
+        self.corner_ir = table if identity else grid_to_ir[table]  # (T, 4) irreducible index of each corner
         self.n_tet = len(self.corner_ir)
         self.n_bands = nb
         self.n_ir = eigs_ir.shape[0]
         self.n_rows = self.n_tet * nb
         self.volume = 1.0 / self.n_tet  # volume fraction of one tetrahedron
         self.eigs_ir = eigs_ir
-        # lowest and highest corner energy of each row, built corner by corner so no (T, 4, nb) array exists
-        lo = np.take(eigs_ir, self.corner_ir[:, 0], axis=0)
-        hi = lo.copy()
-        buf = np.empty_like(lo)
-        for c in (1, 2, 3):  # the other three corners
-            np.take(eigs_ir, self.corner_ir[:, c], axis=0, out=buf)
-            np.minimum(lo, buf, out=lo)
-            np.maximum(hi, buf, out=hi)
-        self.row_min = lo.reshape(-1)
-        self.row_max = hi.reshape(-1)
+        self.k_count = np.bincount(grid_to_ir, minlength=self.n_ir)  # grid points per irreducible point
+        self.row_min, self.row_max = _row_extremes(eigs_ir if identity else eigs_ir[grid_to_ir], mesh, flip)
         self.emin = float(self.row_min.min())
         self.emax = float(self.row_max.max())
         self._corner_count = None
