@@ -242,7 +242,7 @@ def cmd_rank(args) -> int:
     params = _parameters_for(crystal, args.params)
     q_extra = [_parse_q(q) for q in (args.q or [])]
     result = rank(crystal, params, generators=args.generator, extra_q=q_extra, settings=_screen_settings(args),
-                  progress=not args.json and not args.quiet)
+                  progress=not args.json and not args.quiet, relax_cell=args.relax_cell)
     if args.csv:
         result.table().to_csv(args.csv, index=False)
     written = write_optimum_structures(result, args.write_structures) if args.write_structures else []
@@ -302,6 +302,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
     p.add_argument("--threshold-meV", type=float, default=1.0,
                    help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
+    p.add_argument("--relax-cell", action="store_true",
+                   help="relax the rhombohedral angle together with the rhombohedral split (slower)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_rank)
 

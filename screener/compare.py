@@ -135,7 +135,9 @@ class CandidateResult:
     scan_delta_E_elastic_meV_per_atom: tuple[float, ...]
     """Elastic part along the scan, meV/atom."""
     survives_stiffer_repulsion: bool
-    """Whether the scan still gains more than the threshold with the repulsion exponent raised by 2."""
+    """Whether the scan still gains more than the threshold with the repulsion exponent raised by one."""
+    cell_strain: float
+    """Relaxed volume-conserving uniaxial cell strain ε at the optimum (0 when the cell is fixed)."""
     structure: Crystal = field(repr=False)
     """The optimum structure."""
     bonds: object = field(repr=False, default=None)
@@ -148,6 +150,8 @@ class CandidateResult:
 #: insulators and a verdict that only holds at m = 4 deserves doubt (Harrison, Electronic Structure and the
 #: Properties of Solids (1980), overlap repulsion; the cancellation is our own algebra).
 STIFFER_BY = 1.0
+#: Largest uniaxial cell strain tried when a family relaxes its cell (common practice, no source).
+MAX_STRAIN = 0.25
 
 
 class _Evaluator:
@@ -171,17 +175,17 @@ class _Evaluator:
         self.n_atoms = ref.n_atoms
         self._build = build_model
 
-    def stiff_elastic(self, amplitude_A: float) -> float:
+    def stiff_elastic(self, amplitude_A: float, strain: float = 0.0) -> float:
         """Elastic energy per atom with the harder repulsion (geometry only, no diagonalisation)."""
-        crystal, shift = self.family.at_with_shift(amplitude_A)
+        crystal, shift = self.family.at_with_shift(amplitude_A, strain)
         el = self.elastic_stiff
         return el.energy_eV(crystal.lattice_A, crystal.frac, follow_bonds(el.i, el.j, el.image, shift)) / self.n_atoms
 
-    def energies(self, amplitude_A: float, mesh) -> tuple[float, float, object]:
-        """(E_band per atom, E_elastic per atom, BandEnergyResult) at amplitude λ on ``mesh``."""
+    def energies_at(self, amplitude_A: float, strain: float, mesh) -> tuple[float, float, object]:
+        """(E_band per atom, E_elastic per atom, BandEnergyResult) at amplitude λ and cell strain ε."""
         from .electrons import solve_on_mesh
 
-        crystal, shift = self.family.at_with_shift(amplitude_A)
+        crystal, shift = self.family.at_with_shift(amplitude_A, strain)
         b = self.bonds
         bonds = type(b)(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
         model = self._build(crystal, self.params, bonds=bonds)
@@ -190,6 +194,22 @@ class _Evaluator:
         el_img = follow_bonds(self.elastic.i, self.elastic.j, self.elastic.image, shift)
         e_el = self.elastic.energy_eV(crystal.lattice_A, crystal.frac, el_img)
         return res.band_energy_eV / self.n_atoms, e_el / self.n_atoms, res
+
+    def energies(self, amplitude_A: float, mesh) -> tuple[float, float, object, float]:
+        """(E_band, E_elastic per atom, BandEnergyResult, strain) at amplitude λ; the cell strain is relaxed when
+        the family has a strain axis (bounded 1-D minimisation, |ε| ≤ MAX_STRAIN), else 0."""
+        if self.family.strain_axis is None or amplitude_A == 0:
+            return (*self.energies_at(amplitude_A, 0.0, mesh), 0.0)
+        found = {}
+
+        def total(eps):
+            found[eps] = self.energies_at(amplitude_A, eps, mesh)
+            return found[eps][0] + found[eps][1]
+
+        best = minimize_scalar(total, bounds=(-MAX_STRAIN, MAX_STRAIN), method="bounded", options={"xatol": 1e-4})
+        eps = min(found, key=lambda e: found[e][0] + found[e][1])
+        _ = best
+        return (*found[eps], float(eps))
 
 
 def _spring_per_bond(crystal: Crystal, params, i: np.ndarray, j: np.ndarray) -> np.ndarray:
@@ -297,7 +317,7 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
                 progress.update(1)
         return cache[key]
 
-    e0b, e0e, _ = e_at(0.0)
+    e0b, e0e, _, _ = e_at(0.0)
     step = lams[1]
     while True:
         scan = np.array([e_at(x)[:2] for x in lams])
@@ -311,7 +331,7 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
         lams = np.append(lams, lams[-1] + step * np.arange(1, int(settings.n_scan) // 2 + 2))
         lams = lams[lams <= settings.amplitude_limit_fraction * d_min + 1e-12]
     lam_max = float(lams[-1])
-    stiff = np.array([ev.stiff_elastic(x) for x in lams])
+    stiff = np.array([ev.stiff_elastic(x, e_at(x)[3]) for x in lams])
     stiff_total = band + (stiff - stiff[0]) * 1e3
     survives_stiffer = bool(np.min(stiff_total) < -settings.threshold_meV_per_atom)
     note = []
@@ -330,8 +350,8 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
 
     # k-mesh convergence of ΔE at the optimum: parent and optimum on the same, successively finer meshes
     def delta(m):
-        pb, pe, _ = e_at(0.0, m)
-        b, e, r = e_at(lam_opt, m)
+        pb, pe, _, _ = e_at(0.0, m)
+        b, e, r, _ = e_at(lam_opt, m)
         return (b - pb) * 1e3, (e - pe) * 1e3, r
 
     coarse_mesh = mesh
@@ -364,7 +384,10 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
             lam_opt = float(res.x)
             d_band, d_el, res_opt = delta(mesh)
 
-    optimum = family.at_with_shift(lam_opt)
+    strain_opt = e_at(lam_opt, mesh)[3]
+    if abs(strain_opt) > 0.98 * MAX_STRAIN:
+        note.append(f"cell strain at its bound ({strain_opt:+.3f})")
+    optimum = family.at_with_shift(lam_opt, strain_opt)
     crystal_opt, shift = optimum
     sym = analyse(crystal_opt, settings.symprec_A)
     img = follow_bonds(nn.i, nn.j, nn.image, shift)
@@ -394,6 +417,7 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
         scan_delta_E_band_meV_per_atom=tuple(float(x) for x in band),
         scan_delta_E_elastic_meV_per_atom=tuple(float(x) for x in elas),
         survives_stiffer_repulsion=survives_stiffer,
+        cell_strain=float(strain_opt),
         structure=crystal_opt,
         bonds=type(ev.bonds)(ev.bonds.i, ev.bonds.j, follow_bonds(ev.bonds.i, ev.bonds.j, ev.bonds.image, shift)),
     )

@@ -12,7 +12,7 @@ Atom order in the supercell is fixed for the whole family, so the parent's bond 
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 
 import numpy as np
@@ -47,20 +47,30 @@ class DistortionFamily:
     """(n, 3) float, displacement of each supercell atom per unit λ (Å/Å); largest row norm is 1."""
     polarisation: tuple[float, float, float]
     """Unit Cartesian displacement direction (for longitudinal modes, parallel to q)."""
+    strain_axis: tuple[float, float, float] | None = None
+    """Unit Cartesian axis of an optional volume-conserving uniaxial cell strain relaxed with λ (None: fixed cell)."""
 
-    def at(self, amplitude_A: float) -> Crystal:
+    def at(self, amplitude_A: float, strain: float = 0.0) -> Crystal:
         """The distorted structure at amplitude λ = ``amplitude_A`` (largest displacement, Å)."""
-        return self.at_with_shift(amplitude_A)[0]
+        return self.at_with_shift(amplitude_A, strain)[0]
 
-    def at_with_shift(self, amplitude_A: float) -> tuple[Crystal, np.ndarray]:
+    def at_with_shift(self, amplitude_A: float, strain: float = 0.0) -> tuple[Crystal, np.ndarray]:
         """The distorted structure and, per atom, the integer lattice shift its wrapping into the cell applied.
 
         A bond (i, j, image) of the reference stays the same physical bond at amplitude λ with image
-        ``image + shift[j] - shift[i]`` (see `follow_bonds`).
+        ``image + shift[j] - shift[i]`` (see `follow_bonds`). ``strain`` ε stretches the cell by 1 + ε along
+        ``strain_axis`` at constant volume (for the rhombohedral split: changes the rhombohedral angle).
         """
         ref = self.reference
         frac = ref.frac + float(amplitude_A) * self.pattern_A @ np.linalg.inv(ref.lattice_A)
-        crystal = Crystal(ref.lattice_A, frac, ref.species, ref.labels, min_distance_A=ref.min_distance_A)
+        lattice = ref.lattice_A
+        if strain:
+            if self.strain_axis is None:
+                raise ParameterError(f"the {self.generator} family has no strain axis; strain must be 0")
+            n = np.asarray(self.strain_axis)
+            s = (np.eye(3) + float(strain) * np.outer(n, n)) / (1.0 + float(strain)) ** (1 / 3)
+            lattice = lattice @ s
+        crystal = Crystal(lattice, frac, ref.species, ref.labels, min_distance_A=ref.min_distance_A)
         shift = np.rint(frac - crystal.frac).astype(int)
         return crystal, shift
 
@@ -256,12 +266,14 @@ def _cubic_axes(parent: Crystal):
     return axes, nl
 
 
-def rhombohedral_split(parent: Crystal, symprec: float = SYMPREC_A) -> list[DistortionFamily]:
+def rhombohedral_split(parent: Crystal, symprec: float = SYMPREC_A, relax_cell: bool = False
+                       ) -> list[DistortionFamily]:
     """For (pseudo-)simple-cubic bond networks: sites move alternately along a body diagonal.
 
     Each site gets 3 short and 3 long bonds; a simple-cubic parent becomes R-3m (the A7 type). The wave-vector
     is the body-diagonal zone-boundary point of the simple-cubic bond network, q = (1,1,1)/(2 d) in the cubic
-    axes, expressed in the parent's reciprocal basis.
+    axes, expressed in the parent's reciprocal basis. ``relax_cell`` lets the comparator relax the rhombohedral
+    angle (a volume-conserving stretch along the same diagonal) together with the displacement.
     """
     axes, nl = _cubic_axes(parent)
     if axes is None:
@@ -274,9 +286,12 @@ def rhombohedral_split(parent: Crystal, symprec: float = SYMPREC_A) -> list[Dist
     q_frac = q_cart @ parent.lattice_A.T
     fam = _build_family(
         parent, "rhombohedral-split",
-        "sites move alternately along a body diagonal of the simple-cubic bond network: 3 short + 3 long bonds",
+        "sites move alternately along a body diagonal of the simple-cubic bond network: 3 short + 3 long bonds"
+        + ("; rhombohedral angle relaxed" if relax_cell else ""),
         q_frac, diag, phase=0.0,
     )
+    if fam is not None and relax_cell:
+        fam = replace(fam, strain_axis=tuple(float(x) for x in diag))
     return [fam] if fam is not None else []
 
 
@@ -334,12 +349,13 @@ def _same_mode(a: DistortionFamily, b: DistortionFamily, rot_frac: np.ndarray, r
     return bool(np.any(q_match & e_match))
 
 
-def default_candidates(parent: Crystal, generators=None, extra_q=(), symprec: float = SYMPREC_A
-                       ) -> list[DistortionFamily]:
+def default_candidates(parent: Crystal, generators=None, extra_q=(), symprec: float = SYMPREC_A,
+                       relax_cell: bool = False) -> list[DistortionFamily]:
     """The default candidate set: every applicable dimerise and rhombohedral-split, plus longitudinal modulations
     at the zone-boundary points of the parent's cell; duplicates by symmetry are dropped (first name wins).
 
-    ``generators`` restricts the set (names from GENERATORS); ``extra_q`` adds longitudinal modulations.
+    ``generators`` restricts the set (names from GENERATORS); ``extra_q`` adds longitudinal modulations;
+    ``relax_cell`` relaxes the rhombohedral angle of the rhombohedral split.
     """
     gens = tuple(generators) if generators else GENERATORS
     bad = [g for g in gens if g not in GENERATORS]
@@ -349,7 +365,7 @@ def default_candidates(parent: Crystal, generators=None, extra_q=(), symprec: fl
     if "dimerise" in gens:
         fams += dimerise(parent, symprec)
     if "rhombohedral-split" in gens:
-        fams += rhombohedral_split(parent, symprec)
+        fams += rhombohedral_split(parent, symprec, relax_cell=relax_cell)
     qs = [np.asarray(q, dtype=float) for q in extra_q]
     if "modulate" in gens:
         qs = [q for q in zone_boundary_points(parent, symprec)] + qs

@@ -117,6 +117,7 @@ class RankResult:
                     "verdict": c.verdict,
                     "converged": c.converged,
                     "survives_stiffer_repulsion": c.survives_stiffer_repulsion,
+                    "cell_strain": c.cell_strain,
                     "kmesh": list(c.kmesh),
                     "note": c.note,
                     "scan": {
@@ -140,7 +141,7 @@ class RankResult:
 
 
 def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings: ScreenSettings | None = None,
-         progress: bool = True) -> RankResult:
+         progress: bool = True, relax_cell: bool = False) -> RankResult:
     """Generate the candidate distortions of ``crystal``, evaluate each and rank them.
 
     Parameters
@@ -151,6 +152,7 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     extra_q : extra longitudinal modulation wave-vectors (fractions of the parent's reciprocal vectors).
     settings : numerical settings (ScreenSettings()).
     progress : show a progress bar on stderr when the work takes more than a second.
+    relax_cell : relax the rhombohedral angle together with the rhombohedral split (slower).
     """
     from .model import build_model
     from .params import default_parameters
@@ -159,7 +161,7 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     if params is None:
         params = default_parameters(sorted(set(crystal.species)))
     sym = analyse(crystal, settings.symprec_A)
-    families = default_candidates(crystal, generators, extra_q, settings.symprec_A)
+    families = default_candidates(crystal, generators, extra_q, settings.symprec_A, relax_cell=relax_cell)
     n_el = float(build_model(crystal, params).n_electrons)
     bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
                disable=not progress, leave=False)

@@ -172,3 +172,26 @@ def test_simple_cubic_polonium_is_not_flagged_unstable():
     # alpha-Po is simple cubic, a = 3.359 Å (Desando & Lange, J. Inorg. Nucl. Chem. 28, 1837 (1966); from memory)
     result = rank(simple_cubic(3.359, "Po"), progress=False)
     assert result.candidates[0].verdict != "unstable"
+
+
+def test_relaxed_rhombohedral_angle_lowers_energy_and_elongates_the_diagonal():
+    crystal = simple_cubic(A_SC_AS)
+    params = default_parameters(["As"])
+    settings = ScreenSettings(kspacing_per_A=0.3, max_refinements=1)
+    parent = parent_energetics(crystal, params, settings)
+    (fixed,) = rhombohedral_split(crystal)
+    (relaxed,) = rhombohedral_split(crystal, relax_cell=True)
+    # the strained cell keeps its volume and the R-3m symmetry (International Tables A, No. 166)
+    c = relaxed.at(0.1, strain=0.1)
+    assert c.volume_A3 == pytest.approx(relaxed.reference.volume_A3, rel=1e-12)
+    from screener.symmetry import analyse
+
+    assert analyse(c).number == 166
+    r_fixed = evaluate_family(fixed, params, parent, settings)
+    r_relaxed = evaluate_family(relaxed, params, parent, settings)
+    # relaxing one more degree of freedom can only lower the optimum (variational, common practice, no source)
+    assert r_relaxed.delta_E_meV_per_atom <= r_fixed.delta_E_meV_per_atom + 0.5
+    # A7 arsenic's rhombohedral angle (54.1°) is below the 60° of the doubled simple-cubic cell: the body
+    # diagonal is elongated (Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969); angle from memory)
+    assert r_relaxed.cell_strain > 0
+    assert r_fixed.cell_strain == 0.0
