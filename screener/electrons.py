@@ -615,20 +615,18 @@ class _TetrahedronGrid:
         return self.volume * (n_below + float(_tet_count(e, eps).sum()))
 
     # ------------------------------------------------------------------------------------------ Fermi level
-    def _bracket(self, states: float) -> tuple[float, float]:
-        """Energies lo < hi with count(lo) ≤ states ≤ count(hi), from the row extremes alone.
+    def _sampled_level(self, states: float) -> float:
+        """Rough level holding ``states`` (one spin) when each grid point's levels are counted as steps.
 
-        A row counts fully above its top corner and not at all below its bottom one, so
-        #(row_max ≤ ε) ≤ count(ε)/V ≤ #(row_min < ε). With R = states/V, the ⌈R⌉-th smallest row minimum
-        is a lower and the (⌊R⌋+1)-th smallest row maximum an upper bound; one row of margin on each side
-        keeps the bracket valid when R is an integer up to rounding.
+        Only a starting guess for the window search, so a strided subsample of the points is enough.
         """
-        r = states * self.n_tet
-        j = min(max(int(np.ceil(r)) - 1, 0), self.n_rows - 1)
-        k = min(max(int(np.floor(r)), 0), self.n_rows - 1)
-        lo = float(np.partition(self.row_min, j)[j])
-        hi = float(np.partition(self.row_max, k)[k])
-        return lo, hi
+        step = max(1, -(-self.eigs_ir.size // 20000))
+        e = self.eigs_ir[::step].reshape(-1)
+        w = np.repeat(self.k_count[::step].astype(float), self.n_bands)
+        order = np.argsort(e)
+        cum = np.cumsum(w[order])
+        i = int(np.searchsorted(cum, states / self.n_bands * cum[-1]))
+        return float(e[order[min(i, len(e) - 1)]])
 
     def fermi_level(self, n_electrons: float, g: int) -> float:
         if n_electrons <= 0:
@@ -639,19 +637,52 @@ class _TetrahedronGrid:
         if gap > 0:
             # the linear-tetrahedron count is exactly flat between the band extremes of the mesh
             return float(0.5 * (vbm + cbm))
-        lo, hi = self._bracket(n_electrons / g)
-        lo, hi = min(lo, hi), max(lo, hi)
-        rows = self._straddling(lo, hi)
-        e, _, _ = self._sorted_rows(rows)
-        n_below = np.count_nonzero(self.row_max <= lo)
+        floor, ceil = self.emin - 1e-6, self.emax + 1e-6
+        state = {}
+
+        def use_window(lo, hi, rows=None, e=None):
+            """Keep only rows overlapping (lo, hi]; rows wholly below lo count as one state each.
+
+            A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
+            """
+            if rows is None:
+                rows = np.flatnonzero((self.row_max > lo) & (self.row_min <= hi))
+                state["below"] = np.count_nonzero(self.row_max <= lo)
+                state["e"] = self._sorted_rows(rows)[0]
+            else:
+                keep = (e[:, 3] > lo) & (e[:, 0] <= hi)
+                state["below"] += np.count_nonzero(e[:, 3] <= lo)
+                state["e"] = e[keep]
 
         def count(m):
-            return g * self.volume * (n_below + float(_tet_count(e, m).sum()))
+            return g * self.volume * (state["below"] + float(_tet_count(state["e"], m).sum()))
 
-        if not count(lo) <= n_electrons <= count(hi):  # only if rounding defeated the margins: take everything
-            lo, hi = self.emin - 1e-6, self.emax + 1e-6
-            e, _, _ = self._sorted_rows(np.arange(self.n_rows))
-            n_below = 0
+        # A window around the grid-point estimate, widened until it brackets the level. Only rows overlapping
+        # it are ever evaluated; the typical energy spread of one row sets the starting width.
+        guess = self._sampled_level(n_electrons / g)
+        half = max(0.5 * float(np.mean(self.row_max[::61] - self.row_min[::61])), 1e-6 * (ceil - floor))
+        while True:  # a couple of passes at most
+            lo, hi = max(guess - half, floor), min(guess + half, ceil)
+            use_window(lo, hi)
+            c_lo, c_hi = count(lo), count(hi)
+            if (c_lo <= n_electrons <= c_hi) or (lo == floor and hi == ceil):
+                break
+            half *= 4
+        # Illinois false-position steps shrink the window, and with it the rows Brent's method sweeps, down to
+        # about those straddling the level itself
+        width, f_lo, f_hi, side = hi - lo, c_lo - n_electrons, c_hi - n_electrons, 0
+        for _ in range(8):
+            if not (f_lo < 0 < f_hi and hi - lo > 1e-3 * width):
+                break
+            t = min(max((lo * f_hi - hi * f_lo) / (f_hi - f_lo), lo), hi)
+            f_t = count(t) - n_electrons
+            if f_t <= 0:
+                lo, f_lo, f_hi = t, f_t, f_hi / 2 if side == -1 else f_hi
+                side = -1
+            else:
+                hi, f_hi, f_lo = t, f_t, f_lo / 2 if side == 1 else f_lo
+                side = 1
+            use_window(lo, hi, rows=True, e=state["e"])
         return _solve_count(count, n_electrons, lo, hi, "the tetrahedron method")
 
     # ------------------------------------------------------------------------------------------ occupations
