@@ -96,12 +96,6 @@ class BandPath:
     """label -> (3,) fractions of the input cell's reciprocal vectors, for every special point of the type."""
 
 
-def _cell_spglib(crystal: Crystal):
-    from .elements import ATOMIC_NUMBER
-
-    return (crystal.lattice_A, crystal.frac, [ATOMIC_NUMBER[s] for s in crystal.species])
-
-
 def _lattice_family(number: int, centring: str) -> str:
     """Bravais-lattice family name of Setyawan & Curtarolo from a space-group number and centring letter."""
     if number <= 2:
@@ -135,16 +129,9 @@ def special_points(crystal: Crystal, symprec: float = 1e-3):
     """
     import spglib
 
-    from .errors import SymmetryError
+    from .symmetry import dataset
 
-    if not (symprec > 0):
-        raise SymmetryError(f"symprec must be a positive length in Å, got {symprec!r}")
-    ds = spglib.get_symmetry_dataset(_cell_spglib(crystal), symprec=symprec)
-    if ds is None:
-        raise SymmetryError(
-            f"spglib could not find the symmetry of {crystal.formula} at symprec={symprec} Å, so no band path "
-            "can be chosen; try a larger --symprec or give the path with --kpoints"
-        )
+    ds = dataset(crystal, symprec)
     centring = str(ds.international)[0]
     family = _lattice_family(int(ds.number), centring)
     # spglib: (a_s b_s c_s) = (a b c) P^-1 with column vectors; in rows that is conv = P^-T @ lattice.

@@ -19,7 +19,8 @@ def _cell(crystal: Crystal):
     return (crystal.lattice_A, crystal.frac, [ATOMIC_NUMBER[s] for s in crystal.species])
 
 
-def _dataset(crystal: Crystal, symprec: float):
+def dataset(crystal: Crystal, symprec: float = SYMPREC_A):
+    """spglib's symmetry dataset of ``crystal``; SymmetryError if spglib finds none."""
     if not (symprec > 0):
         raise SymmetryError(f"symprec must be a positive length in Å, got {symprec!r}")
     ds = spglib.get_symmetry_dataset(_cell(crystal), symprec=symprec)
@@ -55,7 +56,7 @@ class SymmetryInfo:
 
 def analyse(crystal: Crystal, symprec: float = SYMPREC_A) -> SymmetryInfo:
     """Space group, Wyckoff letters and operations of ``crystal``."""
-    ds = _dataset(crystal, symprec)
+    ds = dataset(crystal, symprec)
     prim = spglib.find_primitive(_cell(crystal), symprec=symprec)
     n_prim = len(prim[1]) if prim is not None else crystal.n_atoms
     return SymmetryInfo(
