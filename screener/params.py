@@ -80,26 +80,25 @@ _F_BLOCK = frozenset(
 
 
 # ---------------------------------------------------------------------------------------------- tables
+def _nested_table(filename: str, outer: str, inner, value: str) -> dict[str, dict[str, float]]:
+    """{row[outer]: {inner(row): float(row[value])}} from a CSV in screener/data whose '#' lines are comments."""
+    table: dict[str, dict[str, float]] = {}
+    with open(_DATA / filename, newline="") as fh:
+        for row in csv.DictReader(line for line in fh if not line.startswith("#")):
+            table.setdefault(row[outer], {})[inner(row)] = float(row[value])
+    return table
+
+
 @lru_cache(maxsize=1)
 def onsite_table() -> dict[str, dict[str, float]]:
     """Element → {"s"|"p"|"d": on-site energy in eV} from data/onsite_energies_eV.csv."""
-    table: dict[str, dict[str, float]] = {}
-    with open(_DATA / "onsite_energies_eV.csv", newline="") as fh:
-        rows = csv.DictReader(line for line in fh if not line.startswith("#"))
-        for row in rows:
-            table.setdefault(row["element"], {})[row["shell"][-1]] = float(row["energy_eV"])
-    return table
+    return _nested_table("onsite_energies_eV.csv", "element", lambda row: row["shell"][-1], "energy_eV")
 
 
 @lru_cache(maxsize=1)
 def harrison_coefficients() -> dict[str, dict[str, float]]:
     """Set name ("1980", "1981") → {SK parameter: η} from data/harrison_coefficients.csv."""
-    table: dict[str, dict[str, float]] = {}
-    with open(_DATA / "harrison_coefficients.csv", newline="") as fh:
-        rows = csv.DictReader(line for line in fh if not line.startswith("#"))
-        for row in rows:
-            table.setdefault(row["set"], {})[row["parameter"]] = float(row["eta"])
-    return table
+    return _nested_table("harrison_coefficients.csv", "set", lambda row: row["parameter"], "eta")
 
 
 # ---------------------------------------------------------------------------------------------- records
