@@ -91,7 +91,7 @@ def write_report(results: dict[str, RankResult], out) -> Path:
         stem = Path(name).stem
         curves = list(res.candidates)
         if curves:
-            plots.plot_energy_curves(curves, out / f"{stem}_energy_curves.png",
+            plots.plot_energy_curves(curves, out / f"{stem}_energy_curves.png", show_parts=False,
                                      title=f"{res.formula} ({name}): candidate distortions")
         _band_plot(res, out / f"{stem}_bands_parent.png", parent=True, title=f"{res.formula} parent")
         if res.candidates and res.candidates[0].verdict != "stable":

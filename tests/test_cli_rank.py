@@ -89,3 +89,24 @@ def test_rank_bad_options_exit_2_with_one_line(chain_files, capsys, args, messag
     assert main(["rank", str(structure), "--params", str(params), "--quiet", *args]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and message in err[0]
+
+
+def test_demo_writes_report_for_every_invented_structure(tmp_path, capsys):
+    # plumbing: the report folder holds a table row set, curves and band plots for every demo structure
+    import pandas as pd
+
+    from screener.report import demo_folder
+
+    out = tmp_path / "report"
+    assert main(["demo", "--out", str(out), "--quiet"]) == 0
+    text = capsys.readouterr().out
+    assert "invented" in text and "not a substitute for DFT" in text
+    names = sorted(p.name for p in demo_folder().iterdir() if p.suffix in (".cif", ".vasp"))
+    table = pd.read_csv(out / "ranked.csv")
+    assert sorted(set(table["structure"])) == names
+    for name in names:
+        stem = name.rsplit(".", 1)[0]
+        assert (out / f"{stem}_energy_curves.png").stat().st_size > 10_000
+        assert (out / f"{stem}_bands_parent.png").stat().st_size > 10_000
+    data = json.loads((out / "results.json").read_text())
+    assert set(data) == set(names)
