@@ -206,9 +206,8 @@ class _Evaluator:
             found[eps] = self.energies_at(amplitude_A, eps, mesh)
             return found[eps][0] + found[eps][1]
 
-        best = minimize_scalar(total, bounds=(-MAX_STRAIN, MAX_STRAIN), method="bounded", options={"xatol": 1e-4})
-        eps = min(found, key=lambda e: found[e][0] + found[e][1])
-        _ = best
+        minimize_scalar(total, bounds=(-MAX_STRAIN, MAX_STRAIN), method="bounded", options={"xatol": 1e-4})
+        eps = min(found, key=lambda e: found[e][0] + found[e][1])  # best strain tried, whatever the solver returned
         return (*found[eps], float(eps))
 
 
@@ -279,11 +278,6 @@ def family_mesh(family: DistortionFamily, kspacing_per_A: float, periodic) -> tu
     mesh = mesh_from_spacing(family.reference, kspacing_per_A, periodic)
     return tuple(int(-(-n // den) * den) if p and n > 1 or (p and den > 1) else int(n)
                  for n, p in zip(mesh, periodic, strict=True))
-
-
-def delta_total_guess(total_meV: np.ndarray) -> float:
-    """Lowest total ΔE of the coarse scan, meV/atom."""
-    return float(np.min(total_meV))
 
 
 def _verdict(delta_meV: float, converged: bool, robust: bool, settings: ScreenSettings) -> str:
@@ -371,7 +365,7 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
         nb, ne, nr = delta(finer)
         converged = abs((nb + ne) - (d_band + d_el)) < settings.convergence_meV_per_atom
         mesh, d_band, d_el, res_opt = finer, nb, ne, nr
-    if not survives_stiffer and delta_total_guess(total) < -settings.threshold_meV_per_atom:
+    if not survives_stiffer and np.min(total) < -settings.threshold_meV_per_atom:
         note.append(f"the gain vanishes with a stiffer repulsion (m = {parent.pair_exponent + STIFFER_BY:g}): "
                     "verdict lowered to marginal")
     if not converged:
