@@ -85,7 +85,7 @@ def main(argv=None) -> None:
     t_mu, mu = best_of(args.repeat, lambda: grid.fermi_level(model.n_electrons, model.spin_degeneracy))
     t_occ, _ = best_of(args.repeat, lambda: grid.occupations(mu))
     t_cnt, _ = best_of(args.repeat, lambda: grid.count(mu))
-    print(f"  tetrahedron parts: grid setup (corners, sort) {t_grid * 1e3:.2f} ms, Fermi level {t_mu * 1e3:.2f} ms "
+    print(f"  tetrahedron parts: grid setup (row corner extremes) {t_grid * 1e3:.2f} ms, Fermi level {t_mu * 1e3:.2f} ms "
           f"(one count over {grid.n_rows} band-tetrahedra {t_cnt * 1e3:.2f} ms), occupations {t_occ * 1e3:.2f} ms")
 
     t_sym, res_sym = best_of(args.repeat, lambda: solve_on_mesh(model, mesh, use_symmetry=True))
