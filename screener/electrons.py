@@ -242,6 +242,12 @@ def _smeared_count(e, w, mu, sigma, method, mp_order, g):
 def _solve_count(count, n_target, lo, hi, what):
     """Root of count(μ) = n_target on [lo, hi] by Brent's method."""
     f_lo, f_hi = count(lo) - n_target, count(hi) - n_target
+    # counts summed in a different order can differ in the last digits: a bracket end within rounding is a root
+    rounding = 1e-9 * max(1.0, abs(n_target))
+    if abs(f_lo) <= rounding:
+        return lo
+    if abs(f_hi) <= rounding:
+        return hi
     if f_lo > 0 or f_hi < 0:
         raise ConvergenceError(
             f"could not bracket the Fermi level for {what}: electron count {f_lo + n_target:.6g} at {lo:.4f} eV "

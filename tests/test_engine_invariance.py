@@ -48,3 +48,14 @@ def test_bulk_modulus_calibration_gives_that_curvature():
     curvature = (total(h) - 2 * total(0.0) + total(-h)) / h**2
     b_gpa = curvature / (9 * crystal.volume_A3) / GPA_IN_EV_PER_A3
     assert b_gpa == pytest.approx(40.0, rel=0.05)
+
+
+def test_half_filled_s_band_on_simple_cubic_splits_at_R():
+    # the nearest-neighbour simple-cubic s band obeys E(k + R) = -E(k) (perfect nesting at R = (1/2,1/2,1/2),
+    # from the Slater & Koster 1954 dispersion); half filled, it must gain from the R-point split. Group-1 Na
+    # defaults to an s-only basis with one electron. (This case once hit a rounding edge in the Fermi search.)
+    from screener.rank import rank
+
+    result = rank(Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Na"]), generators=["rhombohedral-split"], progress=False)
+    (best,) = result.candidates
+    assert best.verdict == "unstable" and best.gap_eV > 0
