@@ -192,6 +192,14 @@ def verdict_summary(result: RankResult) -> str:
         return f"{result.formula}: no applicable candidate distortion"
     best = result.candidates[0]
     word = {"unstable": "UNSTABLE", "marginal": "marginal", "stable": "stable"}[best.verdict]
-    return (f"{result.formula} ({result.space_group_symbol}): {word} — best {best.generator} q={best.q_label} "
-            f"→ {best.space_group_symbol}, ΔE = {best.delta_E_meV_per_atom:.2f} meV/atom, "
+    why = ""
+    if best.verdict == "marginal":
+        if not best.converged:
+            why = " (not k-converged)"
+        elif not best.survives_stiffer_repulsion:
+            why = " (gain vanishes with a stiffer repulsion)"
+        else:
+            why = " (gain below the threshold)"
+    return (f"{result.formula} ({result.space_group_symbol}): {word}{why} — best {best.generator} "
+            f"q={best.q_label} → {best.space_group_symbol}, ΔE = {best.delta_E_meV_per_atom:.2f} meV/atom, "
             f"gap {best.gap_eV:.2f} eV")

@@ -122,15 +122,17 @@ def run_demo(out="screener-report", progress: bool = True) -> dict[str, RankResu
     folder = demo_folder()
     files = sorted(p for p in folder.iterdir() if p.suffix.lower() in _STRUCTURE_ENDINGS or
                    p.name.upper().startswith(("POSCAR", "CONTCAR")))
+    print(f"Screening {len(files)} invented demo structures from {folder} (built-in universal parameters)", flush=True)
     results = {}
     for p in files:
         crystal = read_structure(p)
         results[p.name] = rank(crystal, progress=progress)
-        print(verdict_summary(results[p.name]).replace(results[p.name].formula, f"{p.name}: "
-                                                       f"{results[p.name].formula}", 1), flush=True)
+        print(f"{p.name}: {verdict_summary(results[p.name])}", flush=True)
     path = write_report(results, out)
     print()
     print(f"ranked table, E(λ) curves and band plots written to {path}/ (summary.txt, ranked.csv, *.png)")
     print("Demo structures are invented candidate phases, not real materials.")
     print(CAUTION)
+    for line in dict.fromkeys(r.safety for r in results.values() if r.safety):
+        print(line)
     return results
