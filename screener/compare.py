@@ -189,8 +189,11 @@ class _Evaluator:
         b = self.bonds
         bonds = type(b)(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
         model = self._build(crystal, self.params, bonds=bonds)
+        # k-points may only be folded by symmetries the distorted structure really has: a tolerance above the
+        # displacement would lend it the parent's symmetry
+        symprec = self.settings.symprec_A if amplitude_A == 0 else min(self.settings.symprec_A, 0.1 * amplitude_A)
         res = solve_on_mesh(model, mesh, method=self.settings.method, width_eV=self.settings.width_eV,
-                            symprec=self.settings.symprec_A)
+                            symprec=symprec)
         el_img = follow_bonds(self.elastic.i, self.elastic.j, self.elastic.image, shift)
         e_el = self.elastic.energy_eV(crystal.lattice_A, crystal.frac, el_img)
         return res.band_energy_eV / self.n_atoms, e_el / self.n_atoms, res
