@@ -206,3 +206,20 @@ def test_relaxed_rhombohedral_angle_lowers_energy_and_elongates_the_diagonal():
     # diagonal is elongated (Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969); angle from memory)
     assert r_relaxed.cell_strain > 0
     assert r_fixed.cell_strain == 0.0
+
+
+def test_tiny_amplitudes_are_not_folded_with_the_parent_symmetry():
+    # Brillouin-zone folding may only use symmetries the distorted structure has (common practice, no source):
+    # at λ = 1e-4 Å the symmetry-reduced band energy must equal the full-mesh one
+    from screener.compare import _Evaluator
+    from screener.electrons import solve_on_mesh
+    from screener.model import build_model
+
+    crystal = simple_cubic(2.78)
+    params = default_parameters(["As"])
+    (fam,) = rhombohedral_split(crystal)
+    ev = _Evaluator(fam, params, 2.6, 4.0, ScreenSettings())
+    band, _, res = ev.energies_at(1e-4, 0.0, (12, 12, 12))
+    full = solve_on_mesh(build_model(fam.at(1e-4), params, bonds=ev.bonds), (12, 12, 12), use_symmetry=False)
+    assert band * fam.n_atoms == pytest.approx(full.band_energy_eV, abs=1e-9)
+    assert res.n_kpoints_irreducible > 72  # 72 would be the parent's wedge of this mesh
