@@ -553,13 +553,97 @@ def _row_extremes(e_full: np.ndarray, mesh, flip) -> tuple[np.ndarray, np.ndarra
     return row_min.reshape(-1), row_max.reshape(-1)
 
 
+def _sort4(e: np.ndarray) -> list[np.ndarray]:
+    """Columns of the rows of ``e`` (n, 4) sorted ascending (values only; a five-comparator network, which beats
+    a per-row argsort by an order of magnitude)."""
+    c = [e[:, i] for i in range(4)]
+    for i, j in ((0, 1), (2, 3), (0, 2), (1, 3), (1, 2)):
+        c[i], c[j] = np.minimum(c[i], c[j]), np.maximum(c[i], c[j])
+    return c
+
+
+def _sort4_stable(e: np.ndarray, corner: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Rows of ``e`` (n, 4) sorted ascending, ``corner`` permuted alike; tied corners keep their order.
+
+    Odd–even transposition (four rounds of adjacent comparators) swaps only strictly greater neighbours, so the
+    result equals ``argsort(kind="stable")`` exactly.
+    """
+    ec = [e[:, i] for i in range(4)]
+    cc = [corner[:, i] for i in range(4)]
+    for i in (0, 2, 1, 0, 2, 1):
+        j = i + 1
+        swap = ec[i] > ec[j]
+        ec[i], ec[j] = np.where(swap, ec[j], ec[i]), np.where(swap, ec[i], ec[j])
+        cc[i], cc[j] = np.where(swap, cc[j], cc[i]), np.where(swap, cc[i], cc[j])
+    return np.stack(ec, 1), np.stack(cc, 1)
+
+
+class _RowWindow:
+    """Sorted corner energies of the rows overlapping a bracket (lo, hi], set up for repeated count and DOS.
+
+    Per row the count is a cubic in ε on each of its three pieces (Blöchl, Jepsen & Andersen, PRB 49, 16223
+    (1994), App. B); the piece coefficients are formed once, so each evaluation is a few passes over the rows.
+    """
+
+    def __init__(self, cols: list[np.ndarray], below: int):
+        self.below = below  # rows wholly at or below the bracket's lower end
+        a1, a2, a3, a4 = cols
+        with np.errstate(divide="ignore", invalid="ignore"):  # coefficients of pieces a row never enters
+            d21, d31, d41, d32, d42, d43 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2, a4 - a3
+            q = 1.0 / (d31 * d41)
+            self.arrays = [a1, a2, a3, a4, 1.0 / (d21 * d31 * d41), 1.0 / (d41 * d42 * d43),
+                           d21 * d21 * q, 3 * d21 * q, 3 * q, (d31 + d42) / (d32 * d42) * q]
+
+    def __len__(self) -> int:
+        return len(self.arrays[0])
+
+    def restrict(self, lo: float, hi: float) -> _RowWindow:
+        """Drop rows that no longer overlap (lo, hi]; those wholly at or below lo join ``below``."""
+        a1, a4 = self.arrays[0], self.arrays[3]
+        keep = (a4 > lo) & (a1 <= hi)
+        n_keep = int(np.count_nonzero(keep))
+        if n_keep > 0.7 * len(self):  # not worth the copies yet
+            return self
+        new = object.__new__(_RowWindow)
+        new.below = self.below + int(np.count_nonzero(a4 <= lo))
+        new.arrays = [x[keep] for x in self.arrays]
+        return new
+
+    def count_slope(self, eps: float) -> tuple[float, float]:
+        """(rows below eps counting partial ones fractionally, d/dε of that), rows per eV."""
+        a1, a2, a3, a4, i1, i3, p0, p1, p2, p3 = self.arrays
+        # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them)
+        inside = a4 > eps
+        n = self.below + float(len(a4) - np.count_nonzero(inside))
+        s = 0.0
+        m = (a1 < eps) & (a2 >= eps) & inside
+        if m.any():
+            x = eps - a1[m]
+            x2i = x * x * i1[m]
+            n += float(x2i @ x)
+            s += 3.0 * float(x2i.sum())
+        m = (a2 < eps) & (a3 >= eps) & inside
+        if m.any():
+            x = eps - a2[m]
+            n += float(np.sum(p0[m] + x * (p1[m] + x * (p2[m] - x * p3[m]))))
+            s += float(np.sum(p1[m] + x * (2.0 * p2[m] - 3.0 * x * p3[m])))
+        m = (a3 < eps) & inside
+        if m.any():
+            y = a4[m] - eps
+            y2i = y * y * i3[m]
+            n += float(np.count_nonzero(m)) - float(y2i @ y)
+            s += 3.0 * float(y2i.sum())
+        return n, s
+
+
 class _TetrahedronGrid:
     """Band × tetrahedron rows of the full mesh, ready for repeated integration.
 
-    Row r = t * nb + b is band b on tetrahedron t. For every row only its lowest and highest corner energy is
-    stored: at any energy ε almost all rows lie wholly below (count 1, weight ¼ per corner) or wholly above
-    (nothing), and only the few straddling ε need their four corners gathered, sorted and put through Blöchl's
-    formulas. That keeps the work per call close to one pass over the rows.
+    Row r = b * T + t is band b on tetrahedron t. For every row only its lowest and highest corner energy is
+    needed to classify it: at any energy ε almost all rows lie wholly below (count 1, weight ¼ per corner) or
+    wholly above (nothing), and only the few straddling ε need their four corners gathered, sorted and put through
+    Blöchl's formulas. Whole bands are classified first from their extremes, and the row extremes of a band are
+    computed only when it crosses the energies asked about.
     """
 
     def __init__(self, eigs_ir: np.ndarray, kmesh: IrreducibleMesh, reciprocal_A=None):
@@ -583,9 +667,11 @@ class _TetrahedronGrid:
         # grid point (row-major index) -> irreducible point
         grid_to_ir = np.empty(n_full, dtype=np.int64)
         grid_to_ir[flat] = np.asarray(kmesh.mapping, dtype=np.int64)
-        flip = tuple(int(x) for x in _tetra_offsets(mesh, reciprocal_A)[0, 0])  # path 0 starts at the flip
-        table = _corner_table(tuple(int(m) for m in mesh), flip)
+        self._flip = tuple(int(x) for x in _tetra_offsets(mesh, reciprocal_A)[0, 0])  # path 0 starts at the flip
+        self._mesh = tuple(int(m) for m in mesh)
+        table = _corner_table(self._mesh, self._flip)
         identity = len(grid_to_ir) == eigs_ir.shape[0] and np.array_equal(grid_to_ir, np.arange(n_full))
+        self._grid_to_ir = None if identity else grid_to_ir
         self.corner_ir = table if identity else grid_to_ir[table]  # (T, 4) irreducible index of each corner
         self.n_tet = len(self.corner_ir)
         self.n_bands = nb
@@ -593,46 +679,103 @@ class _TetrahedronGrid:
         self.n_rows = self.n_tet * nb
         self.volume = 1.0 / self.n_tet  # volume fraction of one tetrahedron
         self.eigs_ir = eigs_ir
+        self._bands = np.ascontiguousarray(eigs_ir.T)  # (nb, M): one band's energies, contiguous
         self.k_count = np.bincount(grid_to_ir, minlength=self.n_ir)  # grid points per irreducible point
-        self.row_min, self.row_max = _row_extremes(eigs_ir if identity else eigs_ir[grid_to_ir], mesh, flip)
-        self.emin = float(self.row_min.min())
-        self.emax = float(self.row_max.max())
-        self._corner_count = None
+        # every irreducible point is the image of some grid point, so band extremes equal row extremes
+        self.band_min = self._bands.min(axis=1)
+        self.band_max = self._bands.max(axis=1)
+        self.emin = float(self.band_min.min())
+        self.emax = float(self.band_max.max())
+        self._rows_of_band: list = [None] * nb
 
     # ------------------------------------------------------------------------------------------ row access
+    def band_rows(self, b: int) -> tuple[np.ndarray, np.ndarray]:
+        """(T,) lowest and (T,) highest corner energy of band ``b`` on every tetrahedron (computed once)."""
+        if self._rows_of_band[b] is None:
+            e = self._bands[b] if self._grid_to_ir is None else self._bands[b][self._grid_to_ir]
+            self._rows_of_band[b] = _row_extremes(e[:, None], self._mesh, self._flip)
+        return self._rows_of_band[b]
+
+    @property
+    def row_min(self) -> np.ndarray:
+        """(T·nb,) lowest corner energy of every row, row b·T + t."""
+        return np.concatenate([self.band_rows(b)[0] for b in range(self.n_bands)])
+
+    @property
+    def row_max(self) -> np.ndarray:
+        """(T·nb,) highest corner energy of every row, row b·T + t."""
+        return np.concatenate([self.band_rows(b)[1] for b in range(self.n_bands)])
+
     def _sorted_rows(self, rows: np.ndarray):
         """(n, 4) ascending corner energies of ``rows``, the irreducible point of each sorted slot, the band."""
-        tet, band = np.divmod(rows, self.n_bands)
+        band, tet = np.divmod(rows, self.n_tet)
         corner = self.corner_ir[tet]
         e = self.eigs_ir[corner, band[:, None]]
         # stable, so tied corners keep their path order (which corner gets which weight at a tie)
-        order = np.argsort(e, axis=1, kind="stable")
-        return np.take_along_axis(e, order, axis=1), np.take_along_axis(corner, order, axis=1), band
+        e, corner = _sort4_stable(e, corner)
+        return e, corner, band
 
-    def _straddling(self, lo: float, hi: float) -> np.ndarray:
-        """Rows whose corner range overlaps (lo, hi): the only ones not wholly below lo or above hi."""
-        return np.flatnonzero((self.row_max > lo) & (self.row_min < hi))
+    def _window(self, lo: float, hi: float) -> _RowWindow:
+        """Rows overlapping (lo, hi], sorted; rows wholly at or below lo are only counted.
+
+        A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
+        """
+        below, parts = 0, []
+        for b in range(self.n_bands):  # loop over bands only
+            if self.band_max[b] <= lo:
+                below += self.n_tet
+            elif self.band_min[b] <= hi:
+                rmin, rmax = self.band_rows(b)
+                tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
+                below += self.n_tet - len(tets) - int(np.count_nonzero(rmin > hi))
+                parts.append(self._bands[b][self.corner_ir[tets]])
+        e = np.concatenate(parts) if parts else np.empty((0, 4))
+        return _RowWindow(_sort4(e), below)
 
     def count(self, eps: float) -> float:
         """States per cell (one spin) below eps."""
-        rows = self._straddling(eps, eps)
-        e, _, _ = self._sorted_rows(rows)
-        n_below = np.count_nonzero(self.row_max <= eps)
-        return self.volume * (n_below + float(_tet_count(e, eps).sum()))
+        return self.volume * self._window(eps, eps).count_slope(eps)[0]
 
     # ------------------------------------------------------------------------------------------ Fermi level
-    def _sampled_level(self, states: float) -> float:
-        """Rough level holding ``states`` (one spin) when each grid point's levels are counted as steps.
+    def _sampled_level(self, states: float) -> tuple[float, float]:
+        """Rough level holding ``states`` (one spin) when each grid point's levels are counted as steps, and a
+        typical energy spread of one tetrahedron near it.
 
-        Only a starting guess for the window search, so a strided subsample of the points is enough.
+        Only a starting guess for the window search, so a strided subsample of the points is enough, and only
+        bands that can hold the level are looked at: a band lies wholly below the level if at least ``states``
+        bands start below its top, wholly above if fewer than ``states`` bands end below its bottom.
         """
-        step = max(1, -(-self.eigs_ir.size // 20000))
-        e = self.eigs_ir[::step].reshape(-1)
-        w = np.repeat(self.k_count[::step].astype(float), self.n_bands)
-        order = np.argsort(e)
-        cum = np.cumsum(w[order])
-        i = int(np.searchsorted(cum, states / self.n_bands * cum[-1]))
-        return float(e[order[min(i, len(e) - 1)]])
+        nb = self.n_bands
+        low = np.sort(self.band_min)[min(max(int(np.ceil(states)) - 1, 0), nb - 1)]
+        high = np.sort(self.band_max)[min(int(np.floor(states)), nb - 1)]
+        cand = np.flatnonzero((self.band_max > low) & (self.band_min < high))
+        if len(cand) == 0:
+            return float(0.5 * (low + high)), 0.0
+        n_low = int(np.count_nonzero(self.band_max <= low))
+        step = max(1, -(-self.n_ir * len(cand) // 20000))
+        e = self._bands[cand, ::step].reshape(-1)
+        kc = self.k_count[::step]
+        frac = min(max((states - n_low) / len(cand), 0.0), 1.0)
+        if self._grid_to_ir is None:  # equal weights: a selection, no sort
+            i = min(int(frac * len(e)), len(e) - 1)
+            level = float(np.partition(e, i)[i])
+        else:
+            w = np.tile(kc.astype(float), len(cand))
+            order = np.argsort(e)
+            cum = np.cumsum(w[order])
+            i = int(np.searchsorted(cum, frac * cum[-1]))
+            level = float(e[order[min(i, len(e) - 1)]])
+        # energy change along the (flipped) main diagonal of a grid cube at the sampled points, candidate bands
+        m = np.asarray(self._mesh)
+        pts = np.arange(0, len(self.k_count) if self._grid_to_ir is None else len(self._grid_to_ir), step)
+        idx = np.unravel_index(pts, self._mesh)
+        sign = 1 - 2 * np.asarray(self._flip)
+        nxt = np.ravel_multi_index(tuple(np.mod(idx[a] + sign[a] * (m[a] > 1), m[a]) for a in range(3)),
+                                   self._mesh)
+        g2i = self._grid_to_ir
+        here, there = (pts, nxt) if g2i is None else (g2i[pts], g2i[nxt])
+        spread = float(np.mean(np.abs(self._bands[np.ix_(cand, there)] - self._bands[np.ix_(cand, here)])))
+        return level, spread
 
     def fermi_level(self, n_electrons: float, g: int) -> float:
         if n_electrons <= 0:
@@ -644,52 +787,60 @@ class _TetrahedronGrid:
             # the linear-tetrahedron count is exactly flat between the band extremes of the mesh
             return float(0.5 * (vbm + cbm))
         floor, ceil = self.emin - 1e-6, self.emax + 1e-6
-        state = {}
-
-        def use_window(lo, hi, rows=None, e=None):
-            """Keep only rows overlapping (lo, hi]; rows wholly below lo count as one state each.
-
-            A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
-            """
-            if rows is None:
-                rows = np.flatnonzero((self.row_max > lo) & (self.row_min <= hi))
-                state["below"] = np.count_nonzero(self.row_max <= lo)
-                state["e"] = self._sorted_rows(rows)[0]
-            else:
-                keep = (e[:, 3] > lo) & (e[:, 0] <= hi)
-                state["below"] += np.count_nonzero(e[:, 3] <= lo)
-                state["e"] = e[keep]
-
-        def count(m):
-            return g * self.volume * (state["below"] + float(_tet_count(state["e"], m).sum()))
+        target = n_electrons / (g * self.volume)  # in rows: one row holds one state per spin per tetrahedron
 
         # A window around the grid-point estimate, widened until it brackets the level. Only rows overlapping
-        # it are ever evaluated; the typical energy spread of one row sets the starting width.
-        guess = self._sampled_level(n_electrons / g)
-        half = max(0.5 * float(np.mean(self.row_max[::61] - self.row_min[::61])), 1e-6 * (ceil - floor))
+        # it are ever evaluated; the typical energy spread of one tetrahedron sets the starting width.
+        guess, spread = self._sampled_level(n_electrons / g)
+        half = max(0.5 * spread, 1e-6 * (ceil - floor))
         while True:  # a couple of passes at most
             lo, hi = max(guess - half, floor), min(guess + half, ceil)
-            use_window(lo, hi)
-            c_lo, c_hi = count(lo), count(hi)
-            if (c_lo <= n_electrons <= c_hi) or (lo == floor and hi == ceil):
+            win = self._window(lo, hi)
+            f_lo = win.count_slope(lo)[0] - target
+            f_hi = win.count_slope(hi)[0] - target
+            if (f_lo <= 0 <= f_hi) or (lo == floor and hi == ceil):
                 break
             half *= 4
-        # Illinois false-position steps shrink the window, and with it the rows Brent's method sweeps, down to
-        # about those straddling the level itself
-        width, f_lo, f_hi, side = hi - lo, c_lo - n_electrons, c_hi - n_electrons, 0
-        for _ in range(8):
-            if not (f_lo < 0 < f_hi and hi - lo > 1e-3 * width):
-                break
-            t = min(max((lo * f_hi - hi * f_lo) / (f_hi - f_lo), lo), hi)
-            f_t = count(t) - n_electrons
-            if f_t <= 0:
-                lo, f_lo, f_hi = t, f_t, f_hi / 2 if side == -1 else f_hi
-                side = -1
+        if f_lo > 0 or f_hi < 0:
+            raise ConvergenceError(
+                f"could not bracket the Fermi level for the tetrahedron method: electron count "
+                f"{g * self.volume * (f_lo + target):.6g} at {lo:.4f} eV and {g * self.volume * (f_hi + target):.6g}"
+                f" at {hi:.4f} eV for a target of {n_electrons:.6g}"
+            )
+        if f_lo == 0:
+            return lo
+        if f_hi == 0:
+            return hi
+        # Safeguarded Newton on the exact count, whose slope is the tetrahedron DOS from the same rows: a step
+        # leaving the bracket, or a zero slope, falls back to bisection. The bracket shrinks around the root, and
+        # with it the rows evaluated, down to about those straddling the level itself.
+        mu = min(max(guess, lo), hi)
+        if mu in (lo, hi):
+            mu = 0.5 * (lo + hi)
+        for _ in range(200):
+            f, slope = win.count_slope(mu)
+            f -= target
+            if f == 0:
+                return float(mu)
+            if f < 0:
+                lo, f_lo = mu, f
             else:
-                hi, f_hi, f_lo = t, f_t, f_lo / 2 if side == 1 else f_lo
-                side = 1
-            use_window(lo, hi, rows=True, e=state["e"])
-        return _solve_count(count, n_electrons, lo, hi, "the tetrahedron method")
+                hi, f_hi = mu, f
+            new = mu - f / slope if slope > 0 else lo
+            newton = lo < new < hi
+            if not newton:
+                new = 0.5 * (lo + hi)
+            tol = 1e-13 * max(1.0, abs(new))
+            if hi - lo <= 2 * tol:
+                # the count jumps here (tetrahedra flattened along a single-point mesh direction, all corners
+                # equal): take the bracket end whose count is nearer the target, as Brent's method would
+                return float(lo if -f_lo <= f_hi else hi)
+            if newton and abs(new - mu) <= tol:
+                return float(new)
+            mu = new
+            win = win.restrict(lo, hi)
+        return _solve_count(lambda x: g * self.volume * win.count_slope(x)[0], n_electrons, lo, hi,
+                            "the tetrahedron method")
 
     # ------------------------------------------------------------------------------------------ occupations
     def occupations(self, eps: float, blochl: bool = True) -> np.ndarray:
@@ -699,32 +850,36 @@ class _TetrahedronGrid:
         # E_F often sits exactly on one (e.g. at a folded band crossing on an even mesh): take the mean of the
         # two one-sided limits there. Elsewhere D_T is continuous and the mean equals the value.
         h = 1e-9 * max(1.0, self.emax - self.emin)
-        # rows wholly below eps − h: weight ¼ per corner and zero DOS within ±h, so no Blöchl correction
-        full = (self.row_max <= eps - h).reshape(T, nb)
-        if self._corner_count is None:
-            self._corner_count = np.bincount(self.corner_ir.ravel(), minlength=self.n_ir).astype(float)
+        # every grid point is a corner of 24 tetrahedra (6 per cube × 4 corners, all translates)
+        corner_count = 24.0 * self.k_count
         acc = np.zeros((nb, self.n_ir))
-        n_full = np.count_nonzero(full, axis=0)
-        for b in np.flatnonzero(n_full):  # loop over bands only; a band is usually wholly full or empty
-            if n_full[b] == T:
-                acc[b] = 0.25 * self._corner_count
-            elif 2 * n_full[b] >= T:
-                acc[b] = 0.25 * (self._corner_count
-                                 - np.bincount(self.corner_ir[~full[:, b]].ravel(), minlength=self.n_ir))
-            else:
-                acc[b] = 0.25 * np.bincount(self.corner_ir[full[:, b]].ravel(), minlength=self.n_ir)
-        acc = np.ascontiguousarray(acc.T).reshape(-1)
-        rows = np.flatnonzero(~full.reshape(-1) & (self.row_min < eps + h))
-        for s in range(0, len(rows), _CHUNK_ROWS):  # memory-bounded blocks of the straddling rows
-            e, corner, band = self._sorted_rows(rows[s:s + _CHUNK_ROWS])
-            w = _tet_weights(e, eps)
-            if blochl:
-                # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
-                d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
-                w = w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
-            idx = corner * nb + band[:, None]
-            acc += np.bincount(idx.ravel(), weights=w.ravel(), minlength=self.n_ir * nb)
-        return self.volume * acc.reshape(self.n_ir, nb)
+        for b in range(nb):  # loop over bands only; a band is usually wholly full or empty
+            if self.band_max[b] <= eps - h:  # rows wholly below eps − h: ¼ per corner, no Blöchl correction
+                acc[b] = 0.25 * corner_count
+                continue
+            if self.band_min[b] >= eps + h:
+                continue
+            rmin, rmax = self.band_rows(b)
+            full = rmax <= eps - h
+            n_full = int(np.count_nonzero(full))
+            if n_full == T:
+                acc[b] = 0.25 * corner_count
+            elif 2 * n_full >= T:
+                acc[b] = 0.25 * (corner_count - np.bincount(self.corner_ir[~full].ravel(), minlength=self.n_ir))
+            elif n_full:
+                acc[b] = 0.25 * np.bincount(self.corner_ir[full].ravel(), minlength=self.n_ir)
+            tets = np.flatnonzero(~full & (rmin < eps + h))
+            for s in range(0, len(tets), _CHUNK_ROWS):  # memory-bounded blocks of the straddling rows
+                t = tets[s:s + _CHUNK_ROWS]
+                corner = self.corner_ir[t]
+                e, corner = _sort4_stable(self._bands[b][corner], corner)
+                w = _tet_weights(e, eps)
+                if blochl:
+                    # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
+                    d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
+                    w = w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+                acc[b] += np.bincount(corner.ravel(), weights=w.ravel(), minlength=self.n_ir)
+        return self.volume * np.ascontiguousarray(acc.T)
 
     # ------------------------------------------------------------------------------------------ DOS
     def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):
