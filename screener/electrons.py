@@ -520,37 +520,38 @@ def _corner_table(mesh: tuple[int, int, int], flip: tuple[int, int, int]) -> np.
     return table
 
 
-def _row_extremes(e_full: np.ndarray, mesh, flip) -> tuple[np.ndarray, np.ndarray]:
-    """Lowest and highest corner energy of every band × tetrahedron row, each (T·nb,), row (jN + p)·nb + b.
+def _row_extremes(bands: np.ndarray, mesh, flip) -> tuple[np.ndarray, np.ndarray]:
+    """Lowest and highest corner energy of every tetrahedron for each band of ``bands`` (nb, N) on the full grid;
+    each (nb, T), tetrahedron jN + p.
 
     All six tetrahedra of a grid cube share the flipped main diagonal, so the grid is padded periodically once,
     each cube corner is a shifted view of it, and the diagonal's extremes are shared by the six.
     """
-    nb = e_full.shape[1]
+    nb = bands.shape[0]
     m = tuple(int(x) for x in mesh)
-    grid = e_full.reshape(m + (nb,))
-    pad = np.empty((m[0] + 1, m[1] + 1, m[2] + 1, nb))
-    pad[:-1, :-1, :-1] = grid
-    pad[-1, :-1, :-1] = grid[0]
-    pad[:, -1, :-1] = pad[:, 0, :-1]
-    pad[:, :, -1] = pad[:, :, 0]
+    grid = bands.reshape((nb,) + m)
+    pad = np.empty((nb, m[0] + 1, m[1] + 1, m[2] + 1))
+    pad[:, :-1, :-1, :-1] = grid
+    pad[:, -1, :-1, :-1] = grid[:, 0]
+    pad[:, :, -1, :-1] = pad[:, :, 0, :-1]
+    pad[:, :, :, -1] = pad[:, :, :, 0]
     f = int(flip[0]) | int(flip[1]) << 1 | int(flip[2]) << 2  # cube-corner number of the diagonal's start
 
-    def corner(c):  # view: energies at cube corner c of every grid point, (m0, m1, m2, nb)
+    def corner(c):  # view: energies at cube corner c of every grid point, (nb, m0, m1, m2)
         x, y, z = (int(v) for v in _CORNER_BITS[c])
-        return pad[x:x + m[0], y:y + m[1], z:z + m[2]]
+        return pad[:, x:x + m[0], y:y + m[1], z:z + m[2]]
 
     dmin = np.minimum(corner(f), corner(7 ^ f))
     dmax = np.maximum(corner(f), corner(7 ^ f))
-    row_min = np.empty((6,) + m + (nb,))
-    row_max = np.empty((6,) + m + (nb,))
+    row_min = np.empty((nb, 6) + m)
+    row_max = np.empty((nb, 6) + m)
     bits = (_PATHS ^ np.asarray(flip)[None, None, :]) @ np.array([1, 2, 4])  # (6, 4) cube-corner numbers
     for j, (_, c1, c2, _) in enumerate(bits):  # the six tetrahedra of a cube
-        np.minimum(corner(c1), corner(c2), out=row_min[j])
-        np.minimum(row_min[j], dmin, out=row_min[j])
-        np.maximum(corner(c1), corner(c2), out=row_max[j])
-        np.maximum(row_max[j], dmax, out=row_max[j])
-    return row_min.reshape(-1), row_max.reshape(-1)
+        np.minimum(corner(c1), corner(c2), out=row_min[:, j])
+        np.minimum(row_min[:, j], dmin, out=row_min[:, j])
+        np.maximum(corner(c1), corner(c2), out=row_max[:, j])
+        np.maximum(row_max[:, j], dmax, out=row_max[:, j])
+    return row_min.reshape(nb, -1), row_max.reshape(nb, -1)
 
 
 def _sort4(e: np.ndarray) -> list[np.ndarray]:
@@ -692,13 +693,22 @@ class _TetrahedronGrid:
     def band_rows(self, b: int) -> tuple[np.ndarray, np.ndarray]:
         """(T,) lowest and (T,) highest corner energy of band ``b`` on every tetrahedron (computed once)."""
         if self._rows_of_band[b] is None:
-            e = self._bands[b] if self._grid_to_ir is None else self._bands[b][self._grid_to_ir]
-            self._rows_of_band[b] = _row_extremes(e[:, None], self._mesh, self._flip)
+            self._prepare_rows([b])
         return self._rows_of_band[b]
+
+    def _prepare_rows(self, bands) -> None:
+        """Compute the row extremes of those of ``bands`` not done yet, in one pass."""
+        todo = [b for b in bands if self._rows_of_band[b] is None]
+        if todo:
+            e = self._bands[todo] if self._grid_to_ir is None else self._bands[todo][:, self._grid_to_ir]
+            rmin, rmax = _row_extremes(e, self._mesh, self._flip)
+            for i, b in enumerate(todo):
+                self._rows_of_band[b] = (rmin[i], rmax[i])
 
     @property
     def row_min(self) -> np.ndarray:
         """(T·nb,) lowest corner energy of every row, row b·T + t."""
+        self._prepare_rows(range(self.n_bands))
         return np.concatenate([self.band_rows(b)[0] for b in range(self.n_bands)])
 
     @property
@@ -721,14 +731,14 @@ class _TetrahedronGrid:
         A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
         """
         below, parts = 0, []
-        for b in range(self.n_bands):  # loop over bands only
-            if self.band_max[b] <= lo:
-                below += self.n_tet
-            elif self.band_min[b] <= hi:
-                rmin, rmax = self.band_rows(b)
-                tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
-                below += self.n_tet - len(tets) - int(np.count_nonzero(rmin > hi))
-                parts.append(self._bands[b][self.corner_ir[tets]])
+        cross = [b for b in range(self.n_bands) if self.band_max[b] > lo and self.band_min[b] <= hi]
+        self._prepare_rows(cross)
+        below = self.n_tet * int(np.count_nonzero(self.band_max <= lo))
+        for b in cross:  # loop over bands only
+            rmin, rmax = self.band_rows(b)
+            tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
+            below += int(np.count_nonzero(rmax <= lo))
+            parts.append(self._bands[b][self.corner_ir[tets]])
         e = np.concatenate(parts) if parts else np.empty((0, 4))
         return _RowWindow(_sort4(e), below)
 
@@ -788,36 +798,22 @@ class _TetrahedronGrid:
             return float(0.5 * (vbm + cbm))
         floor, ceil = self.emin - 1e-6, self.emax + 1e-6
         target = n_electrons / (g * self.volume)  # in rows: one row holds one state per spin per tetrahedron
-
-        # A window around the grid-point estimate, widened until it brackets the level. Only rows overlapping
-        # it are ever evaluated; the typical energy spread of one tetrahedron sets the starting width.
-        guess, spread = self._sampled_level(n_electrons / g)
+        # the count is 0 at floor and every row at ceil: a bracket to start from
+        lo, hi, f_lo, f_hi = floor, ceil, -target, float(self.n_rows) - target
+        # Safeguarded Newton on the exact count, whose slope is the tetrahedron DOS from the same rows, started
+        # from the grid-point estimate; a step leaving the bracket, or a zero slope, falls back to bisection.
+        # Only rows overlapping a window around the iterate are held (the typical energy spread of one
+        # tetrahedron sets its starting width); the window is rebuilt, wider, when a step leaves it, and shrinks
+        # with the bracket down to about the rows straddling the level itself.
+        mu, spread = self._sampled_level(n_electrons / g)
         half = max(0.5 * spread, 1e-6 * (ceil - floor))
-        while True:  # a couple of passes at most
-            lo, hi = max(guess - half, floor), min(guess + half, ceil)
-            win = self._window(lo, hi)
-            f_lo = win.count_slope(lo)[0] - target
-            f_hi = win.count_slope(hi)[0] - target
-            if (f_lo <= 0 <= f_hi) or (lo == floor and hi == ceil):
-                break
-            half *= 4
-        if f_lo > 0 or f_hi < 0:
-            raise ConvergenceError(
-                f"could not bracket the Fermi level for the tetrahedron method: electron count "
-                f"{g * self.volume * (f_lo + target):.6g} at {lo:.4f} eV and {g * self.volume * (f_hi + target):.6g}"
-                f" at {hi:.4f} eV for a target of {n_electrons:.6g}"
-            )
-        if f_lo == 0:
-            return lo
-        if f_hi == 0:
-            return hi
-        # Safeguarded Newton on the exact count, whose slope is the tetrahedron DOS from the same rows: a step
-        # leaving the bracket, or a zero slope, falls back to bisection. The bracket shrinks around the root, and
-        # with it the rows evaluated, down to about those straddling the level itself.
-        mu = min(max(guess, lo), hi)
-        if mu in (lo, hi):
-            mu = 0.5 * (lo + hi)
+        w_lo, w_hi = max(mu - half, lo), min(mu + half, hi)
+        win = self._window(w_lo, w_hi)
         for _ in range(200):
+            if not w_lo <= mu <= w_hi:
+                half *= 4
+                w_lo, w_hi = max(mu - half, lo), min(mu + half, hi)
+                win = self._window(w_lo, w_hi)
             f, slope = win.count_slope(mu)
             f -= target
             if f == 0:
@@ -838,7 +834,11 @@ class _TetrahedronGrid:
             if newton and abs(new - mu) <= tol:
                 return float(new)
             mu = new
-            win = win.restrict(lo, hi)
+            if w_lo <= lo and hi <= w_hi:
+                smaller = win.restrict(lo, hi)
+                if smaller is not win:
+                    win, w_lo, w_hi = smaller, lo, hi
+        win = self._window(lo, hi)
         return _solve_count(lambda x: g * self.volume * win.count_slope(x)[0], n_electrons, lo, hi,
                             "the tetrahedron method")
 
@@ -852,34 +852,42 @@ class _TetrahedronGrid:
         h = 1e-9 * max(1.0, self.emax - self.emin)
         # every grid point is a corner of 24 tetrahedra (6 per cube × 4 corners, all translates)
         corner_count = 24.0 * self.k_count
-        acc = np.zeros((nb, self.n_ir))
-        for b in range(nb):  # loop over bands only; a band is usually wholly full or empty
-            if self.band_max[b] <= eps - h:  # rows wholly below eps − h: ¼ per corner, no Blöchl correction
-                acc[b] = 0.25 * corner_count
-                continue
-            if self.band_min[b] >= eps + h:
-                continue
+        acc = np.zeros((self.n_ir, nb))
+        cross = [b for b in range(nb) if eps - h < self.band_max[b] and self.band_min[b] < eps + h]
+        self._prepare_rows(cross)
+        for b in np.flatnonzero(self.band_max <= eps - h):  # rows wholly below eps − h: ¼ per corner, no Blöchl
+            acc[:, b] = 0.25 * corner_count
+        tets = []
+        for b in cross:  # loop over bands only; a band is usually wholly full or empty
             rmin, rmax = self.band_rows(b)
             full = rmax <= eps - h
             n_full = int(np.count_nonzero(full))
             if n_full == T:
-                acc[b] = 0.25 * corner_count
+                acc[:, b] = 0.25 * corner_count
             elif 2 * n_full >= T:
-                acc[b] = 0.25 * (corner_count - np.bincount(self.corner_ir[~full].ravel(), minlength=self.n_ir))
+                acc[:, b] = 0.25 * (corner_count - np.bincount(self.corner_ir[~full].ravel(), minlength=self.n_ir))
             elif n_full:
-                acc[b] = 0.25 * np.bincount(self.corner_ir[full].ravel(), minlength=self.n_ir)
-            tets = np.flatnonzero(~full & (rmin < eps + h))
-            for s in range(0, len(tets), _CHUNK_ROWS):  # memory-bounded blocks of the straddling rows
-                t = tets[s:s + _CHUNK_ROWS]
-                corner = self.corner_ir[t]
-                e, corner = _sort4_stable(self._bands[b][corner], corner)
-                w = _tet_weights(e, eps)
-                if blochl:
-                    # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
-                    d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
-                    w = w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
-                acc[b] += np.bincount(corner.ravel(), weights=w.ravel(), minlength=self.n_ir)
-        return self.volume * np.ascontiguousarray(acc.T)
+                acc[:, b] = 0.25 * np.bincount(self.corner_ir[full].ravel(), minlength=self.n_ir)
+            tets.append(np.flatnonzero(~full & (rmin < eps + h)))
+        # the straddling rows of all crossing bands go through the formulas together, in memory-bounded blocks
+        sizes = [len(t) for t in tets]
+        ends = np.cumsum(sizes, dtype=np.int64)
+        tets = np.concatenate(tets) if tets else np.empty(0, dtype=np.int64)
+        bands = np.repeat(np.asarray(cross, dtype=np.int64), sizes)
+        for s in range(0, len(tets), _CHUNK_ROWS):
+            t, band = tets[s:s + _CHUNK_ROWS], bands[s:s + _CHUNK_ROWS]
+            corner = self.corner_ir[t]
+            e, corner = _sort4_stable(self._bands[band[:, None], corner], corner)
+            w = _tet_weights(e, eps)
+            if blochl:
+                # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
+                d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
+                w = w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+            for b, first, end in zip(cross, ends - sizes, ends):  # bands only: each band's rows are contiguous
+                sl = slice(max(first, s) - s, min(end, s + len(t)) - s)
+                if sl.stop > sl.start:
+                    acc[:, b] += np.bincount(corner[sl].ravel(), weights=w[sl].ravel(), minlength=self.n_ir)
+        return self.volume * acc
 
     # ------------------------------------------------------------------------------------------ DOS
     def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):
