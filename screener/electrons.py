@@ -186,10 +186,11 @@ def _check_eigs(eigs_eV, weights=None) -> np.ndarray:
         raise ParameterError(
             f"eigenvalues must be a non-empty (n_kpoints, n_bands) array, got shape {np.shape(eigs_eV)}"
         )
-    if not np.all(np.isfinite(e)):
+    e_lo, e_hi = float(e.min()), float(e.max())  # NaN or ±inf anywhere shows in the extremes
+    if not (np.isfinite(e_lo) and np.isfinite(e_hi)):
         raise ParameterError("eigenvalues contain NaN or infinite values; check the Hamiltonian parameters")
     drop = np.diff(e, axis=1)
-    if drop.size and drop.min() < -1e-9 * max(1.0, float(np.abs(e).max())):
+    if drop.size and drop.min() < -1e-9 * max(1.0, -e_lo, e_hi):
         k, b = np.unravel_index(int(np.argmin(drop)), drop.shape)
         raise ParameterError(
             f"eigenvalues must ascend along the band axis, but at k-point index {k} band index {b + 1} lies "
@@ -809,6 +810,7 @@ class _TetrahedronGrid:
         half = max(0.5 * spread, 1e-6 * (ceil - floor))
         w_lo, w_hi = max(mu - half, lo), min(mu + half, hi)
         win = self._window(w_lo, w_hi)
+        last_step = None
         for _ in range(200):
             if not w_lo <= mu <= w_hi:
                 half *= 4
@@ -831,8 +833,17 @@ class _TetrahedronGrid:
                 # the count jumps here (tetrahedra flattened along a single-point mesh direction, all corners
                 # equal): take the bracket end whose count is nearer the target, as Brent's method would
                 return float(lo if -f_lo <= f_hi else hi)
-            if newton and abs(new - mu) <= tol:
+            step = abs(new - mu)
+            if newton and step <= tol:
                 return float(new)
+            # after two Newton steps in a row the step ratio r bounds what is left after this one by
+            # step·r/(1 − r) (Newton converges at least that fast once in reach); if that is below the tolerance,
+            # confirming with one more count would not change the answer
+            if newton and last_step is not None and step < 0.5 * last_step:
+                r = step / last_step
+                if step * r / (1 - r) <= 0.1 * tol:
+                    return float(new)
+            last_step = step if newton else None
             mu = new
             if w_lo <= lo and hi <= w_hi:
                 smaller = win.restrict(lo, hi)
