@@ -477,3 +477,66 @@ def test_tetrahedron_fast_path_matches_brute_force(use_symmetry):
             assert fast.fermi_level_eV == pytest.approx(mu, abs=1e-10)
             assert fast.band_energy_eV == pytest.approx(energy, abs=1e-10)
             assert np.allclose(fast.occupations, occ, rtol=0, atol=1e-10)
+
+
+def test_sorting_networks_match_numpy_stable_argsort():
+    # the four-corner sorting networks must equal numpy's stable argsort (the reference), ties included:
+    # every row over {0, 1, 2}^4 and random rows with many ties
+    import itertools
+
+    from screener.electrons import _sort4, _sort4_stable
+
+    rng = np.random.default_rng(SEED)
+    rows = np.concatenate([np.array(list(itertools.product(range(3), repeat=4)), float),
+                           np.round(rng.normal(size=(500, 4)), 1)])
+    corner = rng.integers(0, 1000, size=rows.shape)
+    e, c = _sort4_stable(rows, corner)
+    order = np.argsort(rows, axis=1, kind="stable")
+    assert np.array_equal(e, np.take_along_axis(rows, order, axis=1))
+    assert np.array_equal(c, np.take_along_axis(corner, order, axis=1))
+    assert np.array_equal(np.stack(_sort4(rows), 1), np.sort(rows, axis=1))
+
+
+def test_tetrahedron_row_extremes_and_count_match_corner_energies():
+    # band-major rows b·T + t: lowest/highest corner energy and the count against Blöchl's formula applied to
+    # every row (Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), App. B)
+    from screener.electrons import _TetrahedronGrid, _tetra_offsets
+
+    rng = np.random.default_rng(SEED + 1)
+    m = simple_cubic()
+    for mesh, sym in (((5, 4, 3), False), ((6, 6, 6), True)):
+        kmesh = irreducible_mesh(m.crystal, mesh, use_symmetry=sym)
+        e_ir = np.sort(rng.normal(size=(len(kmesh.kfrac), 3)), axis=1)
+        grid = _TetrahedronGrid(e_ir, kmesh, m.crystal.reciprocal_A)
+        grid_to_ir = np.empty(int(np.prod(mesh)), dtype=int)
+        grid_to_ir[np.ravel_multi_index(np.mod(kmesh.grid_address, mesh).T, mesh)] = kmesh.mapping
+        base = np.stack(np.unravel_index(np.arange(len(grid_to_ir)), mesh), 1)
+        offs = _tetra_offsets(np.array(mesh), m.crystal.reciprocal_A)  # (6, 4, 3), tetrahedron j·N + p
+        corners = np.mod(offs[:, None] + base[None, :, None, :], mesh).reshape(-1, 4, 3)
+        corner_ir = grid_to_ir[np.ravel_multi_index(np.moveaxis(corners, -1, 0), mesh)]  # (T, 4)
+        e_rows = np.moveaxis(e_ir[corner_ir], 2, 0).reshape(-1, 4)  # row b·T + t
+        assert np.array_equal(grid.row_min, e_rows.min(1))
+        assert np.array_equal(grid.row_max, e_rows.max(1))
+        e_sorted = np.sort(e_rows, axis=1)
+        for eps in (-1.5, -0.2, 0.0, 0.7, float(e_ir[3, 1])):
+            assert grid.count(eps) == pytest.approx(_tet_count(e_sorted, eps).sum() / len(corner_ir), abs=1e-12)
+
+
+@pytest.mark.parametrize("mesh", [(7, 1, 1), (6, 6, 1), (5, 4, 6)])
+def test_tetrahedron_newton_fermi_level_matches_brute_force(mesh):
+    # the safeguarded Newton search must land on Brent's root of the full-row count (Blöchl, Jepsen & Andersen,
+    # PRB 49, 16223 (1994)): flattened meshes (DOS jumps at corner energies), a nearly flat band crossing a wide
+    # one (slope varying by orders of magnitude), fillings near band edges
+    rng = np.random.default_rng(SEED + 2)
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, mesh, use_symmetry=False)
+    nk = len(kmesh.kfrac)
+    wide = np.sort(rng.normal(size=(nk, 2)) * 2.0, axis=1)
+    flat = 0.1 + 1e-3 * rng.normal(size=(nk, 1))
+    e = np.sort(np.concatenate([wide, flat], axis=1), axis=1)
+    for n in (0.01, 0.37, 2.0, 2.02, 3.3, 5.99):
+        fast = integrate(e, kmesh, n, reciprocal_A=m.crystal.reciprocal_A)
+        mu, energy, occ = _brute_force_tetrahedron(e, kmesh, n, m.crystal.reciprocal_A)
+        assert fast.fermi_level_eV == pytest.approx(mu, abs=1e-10)
+        assert fast.band_energy_eV == pytest.approx(energy, abs=1e-10)
+        assert np.allclose(fast.occupations, occ, rtol=0, atol=1e-10)
