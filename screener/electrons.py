@@ -432,6 +432,67 @@ def _tet_weights(e, eps):
     return w
 
 
+def _tet_weights_blochl(e, eps, h):
+    """``_tet_weights(e, eps)`` plus Blöchl's correction with D_T(ε_F) the mean of ``_tet_dos`` at eps ∓ h.
+
+    Same arithmetic as those functions, but the piece of each row is found once: a row with no corner within h
+    of eps lies on the same piece at eps − h, eps and eps + h; the few rows with a corner that close go through
+    ``_tet_dos`` itself.
+    """
+    n = len(e)
+    e1, e2, e3, e4 = e.T
+    w = np.zeros((n, 4))
+    d_lo, d_hi = np.zeros(n), np.zeros(n)
+    c1 = (e1 < eps) & (eps <= e2)
+    c2 = (e2 < eps) & (eps <= e3)
+    c3 = (e3 < eps) & (eps < e4)
+    w[eps >= e4] = 0.25
+    lo, hi = eps - h, eps + h
+    if c1.any():
+        a1, a2, a3, a4 = e[c1].T
+        x = eps - a1
+        d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
+        c = 0.25 * x**3 / (d21 * d31 * d41)
+        w[c1] = np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31, c * x / d41], 1)
+        den = (a2 - a1) * (a3 - a1) * (a4 - a1)
+        d_lo[c1] = 3 * (lo - a1) ** 2 / den
+        d_hi[c1] = 3 * (hi - a1) ** 2 / den
+    if c2.any():
+        a1, a2, a3, a4 = e[c2].T
+        d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
+        x1, x2, y3, y4 = eps - a1, eps - a2, a3 - eps, a4 - eps
+        k1 = 0.25 * x1**2 / (d41 * d31)
+        k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
+        k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
+        w[c2] = np.stack([
+            k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
+            k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
+            (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
+            (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
+        ], 1)
+        d21 = a2 - a1
+        q = 3 * (d31 + d42) / (d32 * d42)
+        for x, out in ((lo - a2, d_lo), (hi - a2, d_hi)):
+            out[c2] = (3 * d21 + 6 * x - q * x**2) / (d31 * d41)
+    if c3.any():
+        a1, a2, a3, a4 = e[c3].T
+        y = a4 - eps
+        d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
+        c = 0.25 * y**3 / (d41 * d42 * d43)
+        w[c3] = np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
+                          0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
+        den = (a4 - a1) * (a4 - a2) * (a4 - a3)
+        d_lo[c3] = 3 * (a4 - lo) ** 2 / den
+        d_hi[c3] = 3 * (a4 - hi) ** 2 / den
+    near = np.flatnonzero((np.abs(e - eps) <= h).any(axis=1))
+    if len(near):
+        d_lo[near] = _tet_dos(e[near], lo)
+        d_hi[near] = _tet_dos(e[near], hi)
+    d_f = 0.5 * (d_lo + d_hi)
+    # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
+    return w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+
+
 def _tet_corner_dos(e, eps):
     """(n, 4) DOS carried by each sorted corner per unit volume fraction (sums to ``_tet_dos``).
 
@@ -547,11 +608,11 @@ def _row_extremes(bands: np.ndarray, mesh, flip) -> tuple[np.ndarray, np.ndarray
     row_min = np.empty((nb, 6) + m)
     row_max = np.empty((nb, 6) + m)
     bits = (_PATHS ^ np.asarray(flip)[None, None, :]) @ np.array([1, 2, 4])  # (6, 4) cube-corner numbers
+    # each path's second corner is one of three, shared by two paths: fold the diagonal into those once
+    with_diag = {int(c1): (np.minimum(corner(c1), dmin), np.maximum(corner(c1), dmax)) for c1 in set(bits[:, 1])}
     for j, (_, c1, c2, _) in enumerate(bits):  # the six tetrahedra of a cube
-        np.minimum(corner(c1), corner(c2), out=row_min[:, j])
-        np.minimum(row_min[:, j], dmin, out=row_min[:, j])
-        np.maximum(corner(c1), corner(c2), out=row_max[:, j])
-        np.maximum(row_max[:, j], dmax, out=row_max[:, j])
+        np.minimum(with_diag[int(c1)][0], corner(c2), out=row_min[:, j])
+        np.maximum(with_diag[int(c1)][1], corner(c2), out=row_max[:, j])
     return row_min.reshape(nb, -1), row_max.reshape(nb, -1)
 
 
@@ -889,11 +950,7 @@ class _TetrahedronGrid:
             t, band = tets[s:s + _CHUNK_ROWS], bands[s:s + _CHUNK_ROWS]
             corner = self.corner_ir[t]
             e, corner = _sort4_stable(self._bands[band[:, None], corner], corner)
-            w = _tet_weights(e, eps)
-            if blochl:
-                # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
-                d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
-                w = w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+            w = _tet_weights_blochl(e, eps, h) if blochl else _tet_weights(e, eps)
             for b, first, end in zip(cross, ends - sizes, ends):  # bands only: each band's rows are contiguous
                 sl = slice(max(first, s) - s, min(end, s + len(t)) - s)
                 if sl.stop > sl.start:

@@ -540,3 +540,17 @@ def test_tetrahedron_newton_fermi_level_matches_brute_force(mesh):
         assert fast.fermi_level_eV == pytest.approx(mu, abs=1e-10)
         assert fast.band_energy_eV == pytest.approx(energy, abs=1e-10)
         assert np.allclose(fast.occupations, occ, rtol=0, atol=1e-10)
+
+
+def test_fused_blochl_weights_equal_the_separate_formulas():
+    # one pass over the pieces must give exactly _tet_weights + Blöchl's correction with the mean of _tet_dos at
+    # ε ∓ h (Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22), also for corners within h of ε
+    from screener.electrons import _tet_dos, _tet_weights_blochl
+
+    rng = np.random.default_rng(SEED + 3)
+    e = np.sort(np.round(rng.normal(size=(4000, 4)), 2), axis=1)
+    h = 1e-9
+    for eps in (0.0, 0.13, -0.5 + 0.5e-9, 1.7):
+        d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
+        ref = _tet_weights(e, eps) + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+        assert np.array_equal(_tet_weights_blochl(e, eps, h), ref)
