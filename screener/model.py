@@ -26,8 +26,9 @@ from .structure import Crystal, find_neighbours
 
 #: Relative tolerance grouping neighbour distances into one shell (common practice, no source).
 SHELL_TOLERANCE = 0.1
-#: Memory target for one chunk of complex H(k) matrices, bytes.
-CHUNK_BYTES = 256 * 2**20
+#: Memory target for one chunk of complex H(k) matrices, bytes. A few MB keeps a chunk's build and diagonalisation
+#: in cache; a whole 24³ stack at once (14 MB for 8 orbitals) ran ~10–20 ms slower per call (benchmarks/engine.py).
+CHUNK_BYTES = 4 * 2**20
 #: Longest neighbour search when looking for higher shells, Å.
 MAX_SEARCH_A = 30.0
 
