@@ -14,7 +14,7 @@ ratio is the median over rounds of (full evaluation / bare eigvalsh) measured in
 It then compares the full mesh with its irreducible wedge (same band energy, far fewer diagonalisations).
 Targets: overhead ratio ≤ 1.3, wedge saving ≥ 20×. The last line is ``overhead_ratio <x>`` for the default method.
 
-Run: ``python benchmarks/engine.py [--mesh 24] [--repeat 9]``.
+Run: ``python benchmarks/engine.py [--mesh 24] [--repeat 15]``.
 """
 
 from __future__ import annotations
@@ -52,7 +52,7 @@ def interleaved(rounds: int, tasks: dict) -> tuple[dict, dict]:
 def main(argv=None) -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--mesh", type=int, default=24)
-    ap.add_argument("--repeat", type=int, default=9, help="interleaved rounds (at least 7)")
+    ap.add_argument("--repeat", type=int, default=15, help="interleaved rounds (at least 7)")
     args = ap.parse_args(argv)
     rounds = max(7, args.repeat)
 
