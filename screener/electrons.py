@@ -723,7 +723,11 @@ class _TetrahedronGrid:
                 f"got eigenvalues at {eigs_ir.shape[0]} k-points but the mesh has {len(kmesh.ir_index)} irreducible "
                 "points; compute them at kmesh.kfrac"
             )
-        addr = np.mod(np.asarray(kmesh.grid_address, dtype=np.int64), mesh)
+        addr = np.asarray(kmesh.grid_address, dtype=np.int64)
+        if addr.size and addr.min() >= -mesh.min() and addr.max() < mesh.min():  # usual addresses: one wrap
+            addr = addr + mesh * (addr < 0)
+        else:
+            addr = np.mod(addr, mesh)
         flat = (addr[:, 0] * mesh[1] + addr[:, 1]) * mesh[2] + addr[:, 2]
         if np.any(np.bincount(flat, minlength=n_full) != 1):
             raise ParameterError(f"k-mesh grid addresses do not cover the {tuple(mesh)} grid once each")
