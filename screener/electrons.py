@@ -433,64 +433,10 @@ def _tet_weights(e, eps):
 
 
 def _tet_weights_blochl(e, eps, h):
-    """``_tet_weights(e, eps)`` plus Blöchl's correction with D_T(ε_F) the mean of ``_tet_dos`` at eps ∓ h.
-
-    Same arithmetic as those functions, but the piece of each row is found once: a row with no corner within h
-    of eps lies on the same piece at eps − h, eps and eps + h; the few rows with a corner that close go through
-    ``_tet_dos`` itself.
-    """
-    n = len(e)
-    e1, e2, e3, e4 = e.T
-    w = np.zeros((n, 4))
-    d_lo, d_hi = np.zeros(n), np.zeros(n)
-    c1 = (e1 < eps) & (eps <= e2)
-    c2 = (e2 < eps) & (eps <= e3)
-    c3 = (e3 < eps) & (eps < e4)
-    w[eps >= e4] = 0.25
-    lo, hi = eps - h, eps + h
-    if c1.any():
-        a1, a2, a3, a4 = e[c1].T
-        x = eps - a1
-        d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
-        c = 0.25 * x**3 / (d21 * d31 * d41)
-        w[c1] = np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31, c * x / d41], 1)
-        den = (a2 - a1) * (a3 - a1) * (a4 - a1)
-        d_lo[c1] = 3 * (lo - a1) ** 2 / den
-        d_hi[c1] = 3 * (hi - a1) ** 2 / den
-    if c2.any():
-        a1, a2, a3, a4 = e[c2].T
-        d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
-        x1, x2, y3, y4 = eps - a1, eps - a2, a3 - eps, a4 - eps
-        k1 = 0.25 * x1**2 / (d41 * d31)
-        k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
-        k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
-        w[c2] = np.stack([
-            k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
-            k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
-            (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
-            (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
-        ], 1)
-        d21 = a2 - a1
-        q = 3 * (d31 + d42) / (d32 * d42)
-        for x, out in ((lo - a2, d_lo), (hi - a2, d_hi)):
-            out[c2] = (3 * d21 + 6 * x - q * x**2) / (d31 * d41)
-    if c3.any():
-        a1, a2, a3, a4 = e[c3].T
-        y = a4 - eps
-        d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
-        c = 0.25 * y**3 / (d41 * d42 * d43)
-        w[c3] = np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
-                          0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
-        den = (a4 - a1) * (a4 - a2) * (a4 - a3)
-        d_lo[c3] = 3 * (a4 - lo) ** 2 / den
-        d_hi[c3] = 3 * (a4 - hi) ** 2 / den
-    near = np.flatnonzero((np.abs(e - eps) <= h).any(axis=1))
-    if len(near):
-        d_lo[near] = _tet_dos(e[near], lo)
-        d_hi[near] = _tet_dos(e[near], hi)
-    d_f = 0.5 * (d_lo + d_hi)
+    """``_tet_weights(e, eps)`` plus Blöchl's correction with D_T(ε_F) the mean of ``_tet_dos`` at eps ∓ h."""
+    d_f = 0.5 * (_tet_dos(e, eps - h) + _tet_dos(e, eps + h))
     # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
-    return w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+    return _tet_weights(e, eps) + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
 
 
 def _tet_corner_dos(e, eps):
