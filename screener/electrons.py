@@ -345,15 +345,19 @@ def _tetra_offsets(mesh, reciprocal_A) -> np.ndarray:
     return np.bitwise_xor(_PATHS, flip[None, None, :])
 
 
-def _tet_count(e, eps):
-    """Occupied fraction of each tetrahedron, rows of sorted corner energies e (n, 4) (Blöchl 1994, App. B)."""
+def _pieces(e, eps):
+    """``eps`` broadcast to the rows of sorted corner energies e (n, 4), and the masks of the three partly
+    occupied cases ε1 < ε ≤ ε2, ε2 < ε ≤ ε3, ε3 < ε < ε4 (Blöchl, Jepsen & Andersen 1994, App. B)."""
     eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
     e1, e2, e3, e4 = e.T
+    return eps, (e1 < eps) & (eps <= e2), (e2 < eps) & (eps <= e3), (e3 < eps) & (eps < e4)
+
+
+def _tet_count(e, eps):
+    """Occupied fraction of each tetrahedron, rows of sorted corner energies e (n, 4) (Blöchl 1994, App. B)."""
+    eps, c1, c2, c3 = _pieces(e, eps)
     out = np.zeros(len(e))
-    c1 = (e1 < eps) & (eps <= e2)
-    c2 = (e2 < eps) & (eps <= e3)
-    c3 = (e3 < eps) & (eps < e4)
-    out[eps >= e4] = 1.0
+    out[eps >= e[:, 3]] = 1.0
     if c1.any():
         a1, a2, a3, a4 = e[c1].T
         out[c1] = (eps[c1] - a1) ** 3 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
@@ -370,12 +374,8 @@ def _tet_count(e, eps):
 
 def _tet_dos(e, eps):
     """DOS of each tetrahedron per unit of its volume fraction, states/eV (Blöchl 1994, App. C)."""
-    eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
-    e1, e2, e3, e4 = e.T
+    eps, c1, c2, c3 = _pieces(e, eps)
     out = np.zeros(len(e))
-    c1 = (e1 < eps) & (eps <= e2)
-    c2 = (e2 < eps) & (eps <= e3)
-    c3 = (e3 < eps) & (eps < e4)
     if c1.any():
         a1, a2, a3, a4 = e[c1].T
         out[c1] = 3 * (eps[c1] - a1) ** 2 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
@@ -396,13 +396,9 @@ def _tet_weights(e, eps):
     Σ_i w_i is the occupied fraction and Σ_i w_i ε_i the linearly interpolated occupied energy
     (Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), Appendix B).
     """
-    eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
-    e1, e2, e3, e4 = e.T
+    eps, c1, c2, c3 = _pieces(e, eps)
     w = np.zeros((len(e), 4))
-    c1 = (e1 < eps) & (eps <= e2)
-    c2 = (e2 < eps) & (eps <= e3)
-    c3 = (e3 < eps) & (eps < e4)
-    w[eps >= e4] = 0.25
+    w[eps >= e[:, 3]] = 0.25
     if c1.any():
         a1, a2, a3, a4 = e[c1].T
         x = eps[c1] - a1
@@ -449,11 +445,7 @@ def _tet_corner_dos(e, eps):
     n = len(e)
     out = np.zeros((n, 4))
     dos = _tet_dos(e, eps)
-    eps = np.broadcast_to(np.asarray(eps, dtype=float), (len(e),))
-    e1, e2, e3, e4 = e.T
-    c1 = (e1 < eps) & (eps <= e2)
-    c2 = (e2 < eps) & (eps <= e3)
-    c3 = (e3 < eps) & (eps < e4)
+    eps, c1, c2, c3 = _pieces(e, eps)
     if c1.any():
         a = e[c1]
         t = (eps[c1][:, None] - a[:, :1]) / (a[:, 1:] - a[:, :1])  # positions along edges 1→2, 1→3, 1→4
