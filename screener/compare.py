@@ -13,7 +13,13 @@ import numpy as np
 from scipy.optimize import minimize_scalar
 
 from .distort import DistortionFamily, follow_bonds, nearest_neighbour_bonds
-from .elastic import ElasticModel, exponent_for_bulk_modulus, pair_repulsion_prefactor_eV, unique_bond_mask
+from .elastic import (
+    ElasticModel,
+    bond_lengths_A,
+    exponent_for_bulk_modulus,
+    pair_repulsion_prefactor_eV,
+    unique_bond_mask,
+)
 from .errors import ParameterError
 from .kspace import mesh_from_spacing
 from .structure import Crystal
@@ -168,18 +174,20 @@ class _Evaluator:
         self.bonds = find_bonds(ref, params)
         self.model0 = build_model(ref, params, bonds=self.bonds)
         self.elastic = elastic_model_for(ref, params, self.bonds, elastic_prefactor_eV, exponent)
-        # the same closure with a harder repulsion (m + 2): A m is fixed by equilibrium, so A' = A m / (m + 2)
+        # the same closure with a harder repulsion m' = m + STIFFER_BY: A m is fixed by equilibrium, so A' = A m / m'
         stiff = exponent + STIFFER_BY
         self.elastic_stiff = elastic_model_for(ref, params, self.bonds, elastic_prefactor_eV * exponent / stiff,
                                                stiff)
         self.n_atoms = ref.n_atoms
         self._build = build_model
 
+    def _elastic_per_atom(self, el: ElasticModel, crystal: Crystal, shift: np.ndarray) -> float:
+        """Elastic energy per atom of ``crystal`` (a family member whose atoms were wrapped by ``shift``)."""
+        return el.energy_eV(crystal.lattice_A, crystal.frac, follow_bonds(el.i, el.j, el.image, shift)) / self.n_atoms
+
     def stiff_elastic(self, amplitude_A: float, strain: float = 0.0) -> float:
         """Elastic energy per atom with the harder repulsion (geometry only, no diagonalisation)."""
-        crystal, shift = self.family.at_with_shift(amplitude_A, strain)
-        el = self.elastic_stiff
-        return el.energy_eV(crystal.lattice_A, crystal.frac, follow_bonds(el.i, el.j, el.image, shift)) / self.n_atoms
+        return self._elastic_per_atom(self.elastic_stiff, *self.family.at_with_shift(amplitude_A, strain))
 
     def energies_at(self, amplitude_A: float, strain: float, mesh) -> tuple[float, float, object]:
         """(E_band per atom, E_elastic per atom, BandEnergyResult) at amplitude λ and cell strain ε."""
@@ -194,9 +202,7 @@ class _Evaluator:
         symprec = self.settings.symprec_A if amplitude_A == 0 else min(self.settings.symprec_A, 0.1 * amplitude_A)
         res = solve_on_mesh(model, mesh, method=self.settings.method, width_eV=self.settings.width_eV,
                             symprec=symprec)
-        el_img = follow_bonds(self.elastic.i, self.elastic.j, self.elastic.image, shift)
-        e_el = self.elastic.energy_eV(crystal.lattice_A, crystal.frac, el_img)
-        return res.band_energy_eV / self.n_atoms, e_el / self.n_atoms, res
+        return res.band_energy_eV / self.n_atoms, self._elastic_per_atom(self.elastic, crystal, shift), res
 
     def energies(self, amplitude_A: float, mesh) -> tuple[float, float, object, float]:
         """(E_band, E_elastic per atom, BandEnergyResult, strain) at amplitude λ; the cell strain is relaxed when
@@ -226,7 +232,7 @@ def elastic_model_for(crystal: Crystal, params, bonds, repulsion_eV: float, expo
     """ElasticModel over the model's bonds (each once): springs where the parameters give one, else repulsion."""
     keep = unique_bond_mask(bonds.i, bonds.j, bonds.image)
     i, j, image = bonds.i[keep], bonds.j[keep], bonds.image[keep]
-    d0 = np.linalg.norm((crystal.frac[j] + image - crystal.frac[i]) @ crystal.lattice_A, axis=1)
+    d0 = bond_lengths_A(crystal.lattice_A, crystal.frac, i, j, image)
     springs = _spring_per_bond(crystal, params, i, j)
     rep = np.where(springs > 0, 0.0, repulsion_eV)
     return ElasticModel(i, j, image, d0, rep, springs, float(exponent))
@@ -388,7 +394,7 @@ def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, 
     crystal_opt, shift = optimum
     sym = analyse(crystal_opt, settings.symprec_A)
     img = follow_bonds(nn.i, nn.j, nn.image, shift)
-    d_opt = np.linalg.norm((crystal_opt.frac[nn.j] + img - crystal_opt.frac[nn.i]) @ crystal_opt.lattice_A, axis=1)
+    d_opt = bond_lengths_A(crystal_opt.lattice_A, crystal_opt.frac, nn.i, nn.j, img)
     shells = tuple(float(x) for x in np.unique(np.round(d_opt, 3)))
     delta_total = d_band + d_el
     return CandidateResult(
