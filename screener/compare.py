@@ -92,6 +92,8 @@ class ParentEnergetics:
     """Band gap of the parent at E_F, eV (0 for a metal)."""
     kmesh: tuple[int, int, int]
     """k-mesh used for the parent, in its own cell."""
+    valence_electrons_per_cell: float
+    """Valence electrons the parent's model places in its bands, per cell."""
 
 
 @dataclass(frozen=True)
@@ -272,6 +274,7 @@ def parent_energetics(parent: Crystal, params, settings: ScreenSettings, step: f
         pair_exponent=float(exponent),
         gap_eV=r0.gap_eV,
         kmesh=tuple(mesh),
+        valence_electrons_per_cell=float(model.n_electrons),
     )
 
 

@@ -154,7 +154,6 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     progress : show a progress bar on stderr when the work takes more than a second.
     relax_cell : relax the rhombohedral angle together with the rhombohedral split (slower).
     """
-    from .model import build_model
     from .params import default_parameters
 
     settings = settings or ScreenSettings()
@@ -162,7 +161,6 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         params = default_parameters(sorted(set(crystal.species)))
     sym = analyse(crystal, settings.symprec_A)
     families = default_candidates(crystal, generators, extra_q, settings.symprec_A, relax_cell=relax_cell)
-    n_el = float(build_model(crystal, params).n_electrons)
     bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
                disable=not progress, leave=False)
     try:
@@ -175,7 +173,7 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         formula=crystal.formula,
         space_group_symbol=sym.symbol,
         space_group_number=sym.number,
-        valence_electrons_per_cell=n_el,
+        valence_electrons_per_cell=parent.valence_electrons_per_cell,
         n_atoms=crystal.n_atoms,
         parent=parent,
         candidates=tuple(results),
