@@ -25,10 +25,10 @@ import time
 import numpy as np
 
 from screener import Crystal
-from screener.electrons import integrate, solve_on_mesh
-from screener.model import build_model
-from screener.params import default_parameters
-from screener.symmetry import irreducible_mesh
+from screener.bz.integrate import integrate, solve_on_mesh
+from screener.bz.kmesh import irreducible_mesh
+from screener.tb.model import build_model
+from screener.tb.params import default_parameters
 
 
 def rocksalt_pbte() -> Crystal:
@@ -71,7 +71,7 @@ def main(argv=None) -> None:
 
     # where the tetrahedron time goes (private pieces of screener.electrons, timed for the owner's benefit); each
     # round starts from a fresh grid, so work it does lazily is charged to the step that first needs it
-    from screener.electrons import _TetrahedronGrid
+    from screener.bz.tetra_grid import _TetrahedronGrid
 
     hk = model.hamiltonian(full.kfrac)
     eigs_full = model.eigenvalues(full.kfrac)

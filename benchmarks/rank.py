@@ -8,9 +8,9 @@ from __future__ import annotations
 
 import time
 
-from screener.io import read_structure
-from screener.rank import rank
-from screener.report import demo_folder
+from screener.screen.rank import rank
+from screener.show.report import demo_folder
+from screener.structure.formats import read_structure
 
 
 def main() -> None:

@@ -12,9 +12,9 @@ import time
 
 import numpy as np
 
-from screener.electrons import integrate
-from screener.structure import Crystal
-from screener.symmetry import irreducible_mesh
+from screener.bz.integrate import integrate
+from screener.bz.kmesh import irreducible_mesh
+from screener.structure.crystal import Crystal
 
 ONSITE_EV, V_EV, N_ELECTRONS = 0.3, -1.0, 0.6
 CRYSTAL = Crystal(np.eye(3) * 3.0, [[0.0, 0.0, 0.0]], ["Po"])

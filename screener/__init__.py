@@ -1,10 +1,18 @@
 """screener: screen candidate crystal phases for Peierls-type bond-alternation instabilities."""
 
-from .errors import ConvergenceError, FormatError, ParameterError, ScreenerError, StructureError, SymmetryError
-from .io import read_structure, write_structure
-from .model import build_model
-from .params import default_parameters, load_parameters
-from .structure import Crystal
+from screener.errors import (
+    ConvergenceError,
+    FormatError,
+    ParameterError,
+    ScreenerError,
+    StructureError,
+    SymmetryError,
+)
+from screener.structure.crystal import Crystal
+from screener.structure.formats import read_structure, write_structure
+from screener.tb.model import build_model
+from screener.tb.param_file import load_parameters
+from screener.tb.params import default_parameters
 
 __version__ = "0.1.0"
 

@@ -1,0 +1,108 @@
+"""k-meshes: Monkhorst–Pack points, mesh sizes from a k-spacing, irreducible wedge by symmetry.
+
+k-points are fractions of the reciprocal vectors of the cell they belong to (rows of ``Crystal.reciprocal_A``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import spglib
+
+from screener.errors import ParameterError, SymmetryError
+from screener.structure.crystal import Crystal
+from screener.structure.symmetry import SYMPREC_A, _cell
+
+
+def monkhorst_pack(mesh, shift=(0, 0, 0)) -> np.ndarray:
+    """(N, 3) points of a Monkhorst–Pack mesh (Monkhorst & Pack, PRB 13, 5188 (1976)), Γ-centred when unshifted.
+
+    ``shift`` holds 0 or 1 per direction; 1 displaces that direction by half a mesh step. Points are wrapped
+    into (-1/2, 1/2].
+    """
+    mesh = _check_mesh(mesh)
+    shift = np.asarray(shift, dtype=float)
+    axes = [(np.arange(n) + 0.5 * s) / n for n, s in zip(mesh, shift, strict=True)]
+    k = np.stack(np.meshgrid(*axes, indexing="ij"), axis=-1).reshape(-1, 3)
+    return k - np.ceil(k - 0.5)
+
+
+def mesh_from_spacing(crystal: Crystal, kspacing_per_A: float, periodic=(True, True, True)) -> tuple[int, int, int]:
+    """Mesh sizes with k-point spacing at most ``kspacing_per_A`` (Å⁻¹, 2π included) along each reciprocal vector.
+
+    Directions marked non-periodic (no hopping crosses the cell boundary) get a single point.
+    """
+    if not (kspacing_per_A > 0):
+        raise ParameterError(f"k-point spacing must be a positive number in 1/Å, got {kspacing_per_A!r}")
+    b_len = 2 * np.pi * np.linalg.norm(crystal.reciprocal_A, axis=1)
+    n = np.maximum(1, np.ceil(b_len / kspacing_per_A - 1e-9)).astype(int)
+    n = np.where(np.asarray(periodic, dtype=bool), n, 1)
+    return tuple(int(x) for x in n)
+
+
+def _check_mesh(mesh) -> tuple[int, int, int]:
+    try:
+        m = tuple(int(x) for x in mesh)
+    except (TypeError, ValueError):
+        raise ParameterError(f"k-mesh must be three positive integers, got {mesh!r}") from None
+    if len(m) != 3 or min(m) < 1 or any(float(a) != float(b) for a, b in zip(m, mesh, strict=True)):
+        raise ParameterError(f"k-mesh must be three positive integers, got {mesh!r}")
+    return m
+
+
+# ================================================================================================ band paths
+
+@dataclass(frozen=True)
+class IrreducibleMesh:
+    """A Monkhorst–Pack mesh reduced by the crystal's point group (plus time reversal)."""
+
+    mesh: tuple[int, int, int]
+    """Mesh sizes along the three reciprocal vectors."""
+    shift: tuple[int, int, int]
+    """0 or 1 per direction: 1 shifts the mesh by half a mesh step (spglib convention)."""
+    kfrac_full: np.ndarray
+    """(N, 3) float, every mesh point, fractions of the reciprocal vectors, in spglib's grid order."""
+    grid_address: np.ndarray
+    """(N, 3) int, spglib grid addresses of the full mesh."""
+    mapping: np.ndarray
+    """(N,) int, index into ``ir_index`` order: full point k maps to irreducible point ``mapping[k]``."""
+    ir_index: np.ndarray
+    """(M,) int, full-mesh indices of the irreducible points."""
+    kfrac: np.ndarray
+    """(M, 3) float, irreducible points, fractions of the reciprocal vectors."""
+    weights: np.ndarray
+    """(M,) float, weights summing to 1."""
+
+
+def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = SYMPREC_A,
+                     use_symmetry: bool = True) -> IrreducibleMesh:
+    """Irreducible wedge of a Monkhorst–Pack mesh with weights (spglib ``get_ir_reciprocal_mesh``)."""
+    mesh = tuple(int(m) for m in mesh)
+    shift = tuple(int(s) for s in shift)
+    if len(mesh) != 3 or min(mesh) < 1:
+        raise SymmetryError(f"k-mesh must be three positive integers, got {mesh}")
+    if use_symmetry:
+        res = spglib.get_ir_reciprocal_mesh(mesh, _cell(crystal), is_shift=shift, is_time_reversal=True,
+                                            symprec=symprec)
+        if res is None:
+            raise SymmetryError(f"spglib could not reduce the {mesh} mesh of {crystal.formula}")
+        full_map, grid = res
+    else:
+        grid = np.stack(np.meshgrid(*(np.arange(m) for m in mesh), indexing="ij"), -1).reshape(-1, 3)
+        grid = np.where(grid > np.array(mesh) // 2, grid - np.array(mesh), grid)
+        full_map = np.arange(len(grid))
+    full_map = np.asarray(full_map)
+    grid = np.asarray(grid)
+    kfull = (grid + 0.5 * np.asarray(shift)) / np.asarray(mesh, dtype=float)
+    ir_index, inverse, counts = np.unique(full_map, return_inverse=True, return_counts=True)
+    return IrreducibleMesh(
+        mesh=mesh,
+        shift=shift,
+        kfrac_full=kfull,
+        grid_address=grid,
+        mapping=inverse.reshape(-1),
+        ir_index=ir_index,
+        kfrac=kfull[ir_index],
+        weights=counts / counts.sum(),
+    )

@@ -1,0 +1,380 @@
+"""The tetrahedron grid of one k-mesh: row windows, electron count, Fermi level, occupations, DOS."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from screener.bz.common import _CHUNK_ROWS, _gap, _pair_blocks, _solve_count
+from screener.bz.kmesh import IrreducibleMesh
+from screener.bz.tetrahedron import (
+    _corner_table,
+    _row_extremes,
+    _sort4,
+    _sort4_stable,
+    _tet_corner_dos,
+    _tet_count,
+    _tet_dos,
+    _tet_weights,
+    _tet_weights_blochl,
+    _tetra_offsets,
+)
+from screener.errors import ParameterError
+
+
+class _RowWindow:
+    """Sorted corner energies of the rows overlapping a bracket (lo, hi], set up for repeated count and DOS.
+
+    Per row the count is a cubic in ε on each of its three pieces (Blöchl, Jepsen & Andersen, PRB 49, 16223
+    (1994), App. B); the piece coefficients are formed once, so each evaluation is a few passes over the rows.
+    """
+
+    def __init__(self, cols: list[np.ndarray], below: int):
+        self.below = below  # rows wholly at or below the bracket's lower end
+        a1, a2, a3, a4 = cols
+        with np.errstate(divide="ignore", invalid="ignore"):  # coefficients of pieces a row never enters
+            d21, d31, d41, d32, d42, d43 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2, a4 - a3
+            q = 1.0 / (d31 * d41)
+            self.arrays = [a1, a2, a3, a4, 1.0 / (d21 * d31 * d41), 1.0 / (d41 * d42 * d43),
+                           d21 * d21 * q, 3 * d21 * q, 3 * q, (d31 + d42) / (d32 * d42) * q]
+
+    def __len__(self) -> int:
+        return len(self.arrays[0])
+
+    def restrict(self, lo: float, hi: float) -> _RowWindow:
+        """Drop rows that no longer overlap (lo, hi]; those wholly at or below lo join ``below``."""
+        a1, a4 = self.arrays[0], self.arrays[3]
+        keep = (a4 > lo) & (a1 <= hi)
+        n_keep = int(np.count_nonzero(keep))
+        if n_keep > 0.7 * len(self):  # not worth the copies yet
+            return self
+        new = object.__new__(_RowWindow)
+        new.below = self.below + int(np.count_nonzero(a4 <= lo))
+        new.arrays = [x[keep] for x in self.arrays]
+        return new
+
+    def count_slope(self, eps: float) -> tuple[float, float]:
+        """(rows below eps counting partial ones fractionally, d/dε of that), rows per eV."""
+        a1, a2, a3, a4, i1, i3, p0, p1, p2, p3 = self.arrays
+        # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them)
+        inside = a4 > eps
+        n = self.below + float(len(a4) - np.count_nonzero(inside))
+        s = 0.0
+        m = (a1 < eps) & (a2 >= eps) & inside
+        if m.any():
+            x = eps - a1[m]
+            x2i = x * x * i1[m]
+            n += float(x2i @ x)
+            s += 3.0 * float(x2i.sum())
+        m = (a2 < eps) & (a3 >= eps) & inside
+        if m.any():
+            x = eps - a2[m]
+            n += float(np.sum(p0[m] + x * (p1[m] + x * (p2[m] - x * p3[m]))))
+            s += float(np.sum(p1[m] + x * (2.0 * p2[m] - 3.0 * x * p3[m])))
+        m = (a3 < eps) & inside
+        if m.any():
+            y = a4[m] - eps
+            y2i = y * y * i3[m]
+            n += float(np.count_nonzero(m)) - float(y2i @ y)
+            s += 3.0 * float(y2i.sum())
+        return n, s
+
+
+class _TetrahedronGrid:
+    """Band × tetrahedron rows of the full mesh, ready for repeated integration.
+
+    Row r = b * T + t is band b on tetrahedron t. For every row only its lowest and highest corner energy is
+    needed to classify it: at any energy ε almost all rows lie wholly below (count 1, weight ¼ per corner) or
+    wholly above (nothing), and only the few straddling ε need their four corners gathered, sorted and put through
+    Blöchl's formulas. Whole bands are classified first from their extremes, and the row extremes of a band are
+    computed only when it crosses the energies asked about.
+    """
+
+    def __init__(self, eigs_ir: np.ndarray, kmesh: IrreducibleMesh, reciprocal_A=None):
+        mesh = np.asarray(kmesh.mesh, dtype=int)
+        n_full = int(np.prod(mesh))
+        nb = eigs_ir.shape[1]
+        if len(kmesh.mapping) != n_full or len(kmesh.grid_address) != n_full:
+            raise ParameterError(
+                f"the tetrahedron method needs the full {tuple(mesh)} grid ({n_full} points), but the k-mesh holds "
+                f"{len(kmesh.mapping)}; build it with screener.symmetry.irreducible_mesh"
+            )
+        if eigs_ir.shape[0] != len(kmesh.ir_index):
+            raise ParameterError(
+                f"got eigenvalues at {eigs_ir.shape[0]} k-points but the mesh has {len(kmesh.ir_index)} irreducible "
+                "points; compute them at kmesh.kfrac"
+            )
+        addr = np.asarray(kmesh.grid_address, dtype=np.int64)
+        if addr.size and addr.min() >= -mesh.min() and addr.max() < mesh.min():  # usual addresses: one wrap
+            addr = addr + mesh * (addr < 0)
+        else:
+            addr = np.mod(addr, mesh)
+        flat = (addr[:, 0] * mesh[1] + addr[:, 1]) * mesh[2] + addr[:, 2]
+        if np.any(np.bincount(flat, minlength=n_full) != 1):
+            raise ParameterError(f"k-mesh grid addresses do not cover the {tuple(mesh)} grid once each")
+        # grid point (row-major index) -> irreducible point
+        grid_to_ir = np.empty(n_full, dtype=np.int64)
+        grid_to_ir[flat] = np.asarray(kmesh.mapping, dtype=np.int64)
+        self._flip = tuple(int(x) for x in _tetra_offsets(mesh, reciprocal_A)[0, 0])  # path 0 starts at the flip
+        self._mesh = tuple(int(m) for m in mesh)
+        table = _corner_table(self._mesh, self._flip)
+        identity = len(grid_to_ir) == eigs_ir.shape[0] and np.array_equal(grid_to_ir, np.arange(n_full))
+        self._grid_to_ir = None if identity else grid_to_ir
+        self.corner_ir = table if identity else grid_to_ir[table]  # (T, 4) irreducible index of each corner
+        self.n_tet = len(self.corner_ir)
+        self.n_bands = nb
+        self.n_ir = eigs_ir.shape[0]
+        self.n_rows = self.n_tet * nb
+        self.volume = 1.0 / self.n_tet  # volume fraction of one tetrahedron
+        self.eigs_ir = eigs_ir
+        self._bands = np.ascontiguousarray(eigs_ir.T)  # (nb, M): one band's energies, contiguous
+        self.k_count = np.bincount(grid_to_ir, minlength=self.n_ir)  # grid points per irreducible point
+        # every irreducible point is the image of some grid point, so band extremes equal row extremes
+        self.band_min = self._bands.min(axis=1)
+        self.band_max = self._bands.max(axis=1)
+        self.emin = float(self.band_min.min())
+        self.emax = float(self.band_max.max())
+        self._rows_of_band: list = [None] * nb
+
+    # ------------------------------------------------------------------------------------------ row access
+    def band_rows(self, b: int) -> tuple[np.ndarray, np.ndarray]:
+        """(T,) lowest and (T,) highest corner energy of band ``b`` on every tetrahedron (computed once)."""
+        if self._rows_of_band[b] is None:
+            self._prepare_rows([b])
+        return self._rows_of_band[b]
+
+    def _prepare_rows(self, bands) -> None:
+        """Compute the row extremes of those of ``bands`` not done yet, in one pass."""
+        todo = [b for b in bands if self._rows_of_band[b] is None]
+        if todo:
+            e = self._bands[todo] if self._grid_to_ir is None else self._bands[todo][:, self._grid_to_ir]
+            rmin, rmax = _row_extremes(e, self._mesh, self._flip)
+            for i, b in enumerate(todo):
+                self._rows_of_band[b] = (rmin[i], rmax[i])
+
+    @property
+    def row_min(self) -> np.ndarray:
+        """(T·nb,) lowest corner energy of every row, row b·T + t."""
+        self._prepare_rows(range(self.n_bands))
+        return np.concatenate([self.band_rows(b)[0] for b in range(self.n_bands)])
+
+    @property
+    def row_max(self) -> np.ndarray:
+        """(T·nb,) highest corner energy of every row, row b·T + t."""
+        return np.concatenate([self.band_rows(b)[1] for b in range(self.n_bands)])
+
+    def _sorted_rows(self, rows: np.ndarray):
+        """(n, 4) ascending corner energies of ``rows``, the irreducible point of each sorted slot, the band."""
+        band, tet = np.divmod(rows, self.n_tet)
+        corner = self.corner_ir[tet]
+        e = self.eigs_ir[corner, band[:, None]]
+        # stable, so tied corners keep their path order (which corner gets which weight at a tie)
+        e, corner = _sort4_stable(e, corner)
+        return e, corner, band
+
+    def _window(self, lo: float, hi: float) -> _RowWindow:
+        """Rows overlapping (lo, hi], sorted; rows wholly at or below lo are only counted.
+
+        A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
+        """
+        below, parts = 0, []
+        cross = [b for b in range(self.n_bands) if self.band_max[b] > lo and self.band_min[b] <= hi]
+        self._prepare_rows(cross)
+        below = self.n_tet * int(np.count_nonzero(self.band_max <= lo))
+        for b in cross:  # loop over bands only
+            rmin, rmax = self.band_rows(b)
+            tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
+            below += int(np.count_nonzero(rmax <= lo))
+            parts.append(self._bands[b][self.corner_ir[tets]])
+        e = np.concatenate(parts) if parts else np.empty((0, 4))
+        return _RowWindow(_sort4(e), below)
+
+    def count(self, eps: float) -> float:
+        """States per cell (one spin) below eps."""
+        return self.volume * self._window(eps, eps).count_slope(eps)[0]
+
+    # ------------------------------------------------------------------------------------------ Fermi level
+    def _sampled_level(self, states: float) -> tuple[float, float]:
+        """Rough level holding ``states`` (one spin) when each grid point's levels are counted as steps, and a
+        typical energy spread of one tetrahedron near it.
+
+        Only a starting guess for the window search, so a strided subsample of the points is enough, and only
+        bands that can hold the level are looked at: a band lies wholly below the level if at least ``states``
+        bands start below its top, wholly above if fewer than ``states`` bands end below its bottom.
+        """
+        nb = self.n_bands
+        low = np.sort(self.band_min)[min(max(int(np.ceil(states)) - 1, 0), nb - 1)]
+        high = np.sort(self.band_max)[min(int(np.floor(states)), nb - 1)]
+        cand = np.flatnonzero((self.band_max > low) & (self.band_min < high))
+        if len(cand) == 0:
+            return float(0.5 * (low + high)), 0.0
+        n_low = int(np.count_nonzero(self.band_max <= low))
+        step = max(1, -(-self.n_ir * len(cand) // 20000))
+        e = self._bands[cand, ::step].reshape(-1)
+        kc = self.k_count[::step]
+        frac = min(max((states - n_low) / len(cand), 0.0), 1.0)
+        if self._grid_to_ir is None:  # equal weights: a selection, no sort
+            i = min(int(frac * len(e)), len(e) - 1)
+            level = float(np.partition(e, i)[i])
+        else:
+            w = np.tile(kc.astype(float), len(cand))
+            order = np.argsort(e)
+            cum = np.cumsum(w[order])
+            i = int(np.searchsorted(cum, frac * cum[-1]))
+            level = float(e[order[min(i, len(e) - 1)]])
+        # energy change along the (flipped) main diagonal of a grid cube at the sampled points, candidate bands
+        m = np.asarray(self._mesh)
+        pts = np.arange(0, len(self.k_count) if self._grid_to_ir is None else len(self._grid_to_ir), step)
+        idx = np.unravel_index(pts, self._mesh)
+        sign = 1 - 2 * np.asarray(self._flip)
+        nxt = np.ravel_multi_index(tuple(np.mod(idx[a] + sign[a] * (m[a] > 1), m[a]) for a in range(3)),
+                                   self._mesh)
+        g2i = self._grid_to_ir
+        here, there = (pts, nxt) if g2i is None else (g2i[pts], g2i[nxt])
+        spread = float(np.mean(np.abs(self._bands[np.ix_(cand, there)] - self._bands[np.ix_(cand, here)])))
+        return level, spread
+
+    def fermi_level(self, n_electrons: float, g: int) -> float:
+        if n_electrons <= 0:
+            return self.emin
+        if n_electrons >= g * self.n_bands:
+            return self.emax
+        gap, vbm, cbm = _gap(self.eigs_ir, n_electrons, g)
+        if gap > 0:
+            # the linear-tetrahedron count is exactly flat between the band extremes of the mesh
+            return float(0.5 * (vbm + cbm))
+        floor, ceil = self.emin - 1e-6, self.emax + 1e-6
+        target = n_electrons / (g * self.volume)  # in rows: one row holds one state per spin per tetrahedron
+        # the count is 0 at floor and every row at ceil: a bracket to start from
+        lo, hi, f_lo, f_hi = floor, ceil, -target, float(self.n_rows) - target
+        # Safeguarded Newton on the exact count, whose slope is the tetrahedron DOS from the same rows, started
+        # from the grid-point estimate; a step leaving the bracket, or a zero slope, falls back to bisection.
+        # Only rows overlapping a window around the iterate are held (the typical energy spread of one
+        # tetrahedron sets its starting width); the window is rebuilt, wider, when a step leaves it, and shrinks
+        # with the bracket down to about the rows straddling the level itself.
+        mu, spread = self._sampled_level(n_electrons / g)
+        half = max(0.5 * spread, 1e-6 * (ceil - floor))
+        w_lo, w_hi = max(mu - half, lo), min(mu + half, hi)
+        win = self._window(w_lo, w_hi)
+        last_step = None
+        for _ in range(200):
+            if not w_lo <= mu <= w_hi:
+                half *= 4
+                w_lo, w_hi = max(mu - half, lo), min(mu + half, hi)
+                win = self._window(w_lo, w_hi)
+            f, slope = win.count_slope(mu)
+            f -= target
+            if f == 0:
+                return float(mu)
+            if f < 0:
+                lo, f_lo = mu, f
+            else:
+                hi, f_hi = mu, f
+            new = mu - f / slope if slope > 0 else lo
+            newton = lo < new < hi
+            if not newton:
+                new = 0.5 * (lo + hi)
+            tol = 1e-13 * max(1.0, abs(new))
+            if hi - lo <= 2 * tol:
+                # the count jumps here (tetrahedra flattened along a single-point mesh direction, all corners
+                # equal): take the bracket end whose count is nearer the target, as Brent's method would
+                return float(lo if -f_lo <= f_hi else hi)
+            step = abs(new - mu)
+            if newton and step <= tol:
+                return float(new)
+            # after two Newton steps in a row the step ratio r bounds what is left after this one by
+            # step·r/(1 − r) (Newton converges at least that fast once in reach); if that is below the tolerance,
+            # confirming with one more count would not change the answer
+            if newton and last_step is not None and step < 0.5 * last_step:
+                r = step / last_step
+                if step * r / (1 - r) <= 0.1 * tol:
+                    return float(new)
+            last_step = step if newton else None
+            mu = new
+            if w_lo <= lo and hi <= w_hi:
+                smaller = win.restrict(lo, hi)
+                if smaller is not win:
+                    win, w_lo, w_hi = smaller, lo, hi
+        win = self._window(lo, hi)
+        return _solve_count(lambda x: g * self.volume * win.count_slope(x)[0], n_electrons, lo, hi,
+                            "the tetrahedron method")
+
+    # ------------------------------------------------------------------------------------------ occupations
+    def occupations(self, eps: float, blochl: bool = True) -> np.ndarray:
+        """(M, nb) one-spin occupation weights folded onto the irreducible points (Σ = count(eps))."""
+        nb, T = self.n_bands, self.n_tet
+        # Tetrahedra flattened along a single-point mesh direction have a DOS that jumps at a corner energy, and
+        # E_F often sits exactly on one (e.g. at a folded band crossing on an even mesh): take the mean of the
+        # two one-sided limits there. Elsewhere D_T is continuous and the mean equals the value.
+        h = 1e-9 * max(1.0, self.emax - self.emin)
+        # every grid point is a corner of 24 tetrahedra (6 per cube × 4 corners, all translates)
+        corner_count = 24.0 * self.k_count
+        acc = np.zeros((self.n_ir, nb))
+        cross = [b for b in range(nb) if eps - h < self.band_max[b] and self.band_min[b] < eps + h]
+        self._prepare_rows(cross)
+        for b in np.flatnonzero(self.band_max <= eps - h):  # rows wholly below eps − h: ¼ per corner, no Blöchl
+            acc[:, b] = 0.25 * corner_count
+        tets = []
+        for b in cross:  # loop over bands only; a band is usually wholly full or empty
+            rmin, rmax = self.band_rows(b)
+            full = rmax <= eps - h
+            n_full = int(np.count_nonzero(full))
+            if n_full == T:
+                acc[:, b] = 0.25 * corner_count
+            elif 2 * n_full >= T:
+                acc[:, b] = 0.25 * (corner_count - np.bincount(self.corner_ir[~full].ravel(), minlength=self.n_ir))
+            elif n_full:
+                acc[:, b] = 0.25 * np.bincount(self.corner_ir[full].ravel(), minlength=self.n_ir)
+            tets.append(np.flatnonzero(~full & (rmin < eps + h)))
+        # the straddling rows of all crossing bands go through the formulas together, in memory-bounded blocks
+        sizes = [len(t) for t in tets]
+        ends = np.cumsum(sizes, dtype=np.int64)
+        tets = np.concatenate(tets) if tets else np.empty(0, dtype=np.int64)
+        bands = np.repeat(np.asarray(cross, dtype=np.int64), sizes)
+        for s in range(0, len(tets), _CHUNK_ROWS):
+            t, band = tets[s:s + _CHUNK_ROWS], bands[s:s + _CHUNK_ROWS]
+            corner = self.corner_ir[t]
+            e, corner = _sort4_stable(self._bands[band[:, None], corner], corner)
+            w = _tet_weights_blochl(e, eps, h) if blochl else _tet_weights(e, eps)
+            for b, first, end in zip(cross, ends - sizes, ends):  # bands only: each band's rows are contiguous
+                sl = slice(max(first, s) - s, min(end, s + len(t)) - s)
+                if sl.stop > sl.start:
+                    acc[:, b] += np.bincount(corner[sl].ravel(), weights=w[sl].ravel(), minlength=self.n_ir)
+        return self.volume * acc
+
+    # ------------------------------------------------------------------------------------------ DOS
+    def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):
+        """(ne,) one-spin DOS, (ne,) count and (ne, nproj) projected DOS on an energy grid."""
+        energies = np.asarray(energies, dtype=float)
+        ne = len(energies)
+        order_e = np.argsort(energies)
+        es = energies[order_e]
+        nproj = 0 if proj_ir is None else proj_ir.shape[2]
+        pdos = np.zeros((ne, nproj))
+        # a row counts fully at energies ≥ its top corner; energies strictly inside (e1, e4) are evaluated as
+        # (row, energy) pairs, processed in blocks of bounded pair count so memory stays bounded
+        lo = np.searchsorted(es, self.row_min, side="right")
+        hi = np.searchsorted(es, self.row_max, side="left")
+        below = np.bincount(hi, minlength=ne + 1)[:ne].cumsum().astype(float)
+        dos = np.zeros(ne)
+        active = np.flatnonzero(hi > lo)
+        for sub, eidx in _pair_blocks(lo[active], hi[active]):
+            # pairs come ordered by row: sort each block's rows once, then spread them over their pairs
+            first = int(sub[0])
+            e_blk, corner_blk, band_blk = self._sorted_rows(active[first:int(sub[-1]) + 1])
+            loc = sub - first
+            er, x = e_blk[loc], es[eidx]
+            below += np.bincount(eidx, weights=_tet_count(er, x), minlength=ne)
+            if nproj:
+                cw = _tet_corner_dos(er, x)  # (p, 4)
+                dos += np.bincount(eidx, weights=cw.sum(1), minlength=ne)
+                contrib = np.einsum("pc,pcj->pj", cw, proj_ir[corner_blk[loc], band_blk[loc][:, None], :])
+                for j in range(nproj):  # loop over projection channels only
+                    pdos[:, j] += np.bincount(eidx, weights=contrib[:, j], minlength=ne)
+            else:
+                dos += np.bincount(eidx, weights=_tet_dos(er, x), minlength=ne)
+        inv = np.empty(ne, dtype=int)
+        inv[order_e] = np.arange(ne)
+        v = self.volume
+        return v * dos[inv], v * below[inv], v * pdos[inv]
+
+

@@ -1,0 +1,101 @@
+"""Elastic cost of a distortion: pair repulsion fitted to equilibrium, or harmonic bond springs.
+
+The tight-binding band energy alone always favours shorter bonds. The usual closure of tight-binding total-energy
+models adds a short-ranged pair repulsion whose strength is fixed by requiring the observed (parent) structure to
+be in mechanical equilibrium (Chadi, Phys. Rev. Lett. 41, 1062 (1978)). Here φ(d) = A (d0/d)^m per bond, where d0
+is the bond's length in the parent, one A for all bonds, fixed by dE_total/ds = 0 under uniform scaling
+r → (1 + s) r. Bonds whose parameters give ``spring_eV_per_A2`` use Σ ½ K (d − d0)² instead.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from screener.errors import ParameterError
+
+#: 1 GPa in eV/Å^3 (CODATA: 1 eV = 1.602176634e-19 J).
+GPA_IN_EV_PER_A3 = 1.0 / 160.21766208
+
+
+def unique_bond_mask(i: np.ndarray, j: np.ndarray, image: np.ndarray) -> np.ndarray:
+    """Mask that keeps one direction of each bond listed in both directions (i<j, or i==j with image > 0)."""
+    i, j, image = np.asarray(i), np.asarray(j), np.asarray(image)
+    first_nonzero = np.where(image != 0, image, 0)
+    # sign of the first non-zero image component
+    idx = np.argmax(image != 0, axis=1)
+    sign = np.sign(first_nonzero[np.arange(len(i)), idx])
+    return (i < j) | ((i == j) & (sign > 0))
+
+
+def bond_lengths_A(lattice_A: np.ndarray, frac: np.ndarray, i, j, image) -> np.ndarray:
+    """Lengths (Å) of bonds (i, j, image) in a cell: |(frac_j + image − frac_i) · L|."""
+    vec = (frac[j] + image - frac[i]) @ lattice_A
+    return np.linalg.norm(vec, axis=1)
+
+
+@dataclass(frozen=True)
+class ElasticModel:
+    """Pair repulsion + harmonic springs over a fixed list of bonds (each listed once)."""
+
+    i: np.ndarray
+    """(p,) int, first atom of each bond."""
+    j: np.ndarray
+    """(p,) int, second atom of each bond."""
+    image: np.ndarray
+    """(p, 3) int, lattice translation added to atom j."""
+    rest_length_A: np.ndarray
+    """(p,) float, bond length in the parent structure, Å."""
+    repulsion_eV: np.ndarray
+    """(p,) float, pair-repulsion prefactor A per bond at the parent length, eV (0 for spring bonds)."""
+    spring_eV_per_A2: np.ndarray
+    """(p,) float, harmonic spring constant per bond, eV/Å^2 (0 for repulsion bonds)."""
+    exponent: float
+    """Pair-repulsion exponent m."""
+
+    def energy_eV(self, lattice_A: np.ndarray, frac: np.ndarray, image: np.ndarray | None = None) -> float:
+        """Elastic energy of the cell (eV). ``image`` overrides the stored bond images (bonds that follow
+        wrapped atoms)."""
+        img = self.image if image is None else image
+        d = bond_lengths_A(lattice_A, frac, self.i, self.j, img)
+        rep = self.repulsion_eV * (self.rest_length_A / d) ** self.exponent
+        spr = 0.5 * self.spring_eV_per_A2 * (d - self.rest_length_A) ** 2
+        return float(rep.sum() + spr.sum())
+
+
+def pair_repulsion_prefactor_eV(band_slope_eV: float, n_repulsive_bonds: int, exponent: float) -> float:
+    """A such that the parent is stationary under uniform scaling: dE_band/ds − m Σ_b A = 0.
+
+    ``band_slope_eV`` is dE_band/ds per cell at s = 0 (r → (1 + s) r); ``n_repulsive_bonds`` counts the bonds per
+    cell that carry the repulsion. A band energy that does not favour compression (slope ≤ 0) gets A = 0.
+    """
+    if not exponent > 0:
+        raise ParameterError(f"pair-repulsion exponent must be positive, got {exponent!r} (default 4)")
+    if n_repulsive_bonds == 0 or band_slope_eV <= 0:
+        return 0.0
+    return band_slope_eV / (exponent * n_repulsive_bonds)
+
+
+def exponent_for_bulk_modulus(bulk_modulus_GPa: float, volume_A3: float, band_slope_eV: float,
+                              band_curvature_eV: float) -> float:
+    """Repulsion exponent m that gives the parent a chosen bulk modulus.
+
+    With E(s) per cell under uniform scaling and V = V0 (1 + s)^3, B = (1 / 9V0) d²E/ds² at s = 0. The fitted
+    repulsion contributes (m + 1)·dE_band/ds to d²E/ds², so m = (9 V0 B − E_band'') / E_band' − 1.
+    """
+    if not bulk_modulus_GPa > 0:
+        raise ParameterError(f"bulk modulus must be positive (GPa), got {bulk_modulus_GPa!r}")
+    if band_slope_eV <= 0:
+        raise ParameterError(
+            "cannot calibrate to a bulk modulus: the band energy of this parent does not favour compression "
+            f"(dE_band/ds = {band_slope_eV:.4g} eV), so no repulsion is needed to hold it"
+        )
+    b = bulk_modulus_GPa * GPA_IN_EV_PER_A3
+    m = (9 * volume_A3 * b - band_curvature_eV) / band_slope_eV - 1
+    if not m > 0:
+        raise ParameterError(
+            f"a bulk modulus of {bulk_modulus_GPa} GPa is below what the band energy alone gives this parent; "
+            "no positive repulsion exponent reproduces it — give a larger value or use springs"
+        )
+    return float(m)

@@ -1,0 +1,386 @@
+"""Candidate distortion generators: Crystal -> family of Crystals(λ).
+
+Every family is a frozen displacement pattern on a commensurate supercell of the parent,
+
+    r_j(λ) = r_j + λ e_j cos(2π q·x_j + φ) / max_j |e_j cos(2π q·x_j + φ)|,
+
+so the amplitude λ (Å) is the largest atomic displacement from the parent. ``q`` is given in fractions of the
+parent's reciprocal vectors and ``x_j`` are the atoms' coordinates in fractions of the parent's lattice vectors.
+Atom order in the supercell is fixed for the whole family, so the parent's bond list applies at every λ.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass, replace
+from fractions import Fraction
+
+import numpy as np
+
+from screener.errors import ParameterError
+from screener.structure.crystal import Crystal
+from screener.structure.neighbours import find_neighbours
+from screener.structure.symmetry import SYMPREC_A, analyse
+
+GENERATORS = ("dimerise", "rhombohedral-split", "modulate")
+
+#: Relative tolerance for "same shell" when finding the parent's nearest-neighbour bonds (common practice, no source).
+SHELL_TOLERANCE = 0.05
+
+
+@dataclass(frozen=True, eq=False)
+class DistortionFamily:
+    """A one-parameter family of distorted structures built on a commensurate supercell of the parent."""
+
+    generator: str
+    """Name of the generator: 'dimerise', 'rhombohedral-split' or 'modulate'."""
+    description: str
+    """One line saying what moves where."""
+    q_frac: tuple[float, float, float]
+    """Wave-vector, fractions of the parent's reciprocal lattice vectors."""
+    q_label: str
+    """q written with exact fractions, e.g. '(1/2, 1/2, 1/2)'."""
+    supercell_matrix: np.ndarray
+    """(3, 3) int, supercell lattice = supercell_matrix @ parent lattice."""
+    reference: Crystal
+    """The undistorted parent expressed in the supercell (λ = 0)."""
+    pattern_A: np.ndarray
+    """(n, 3) float, displacement of each supercell atom per unit λ (Å/Å); largest row norm is 1."""
+    polarisation: tuple[float, float, float]
+    """Unit Cartesian displacement direction (for longitudinal modes, parallel to q)."""
+    strain_axis: tuple[float, float, float] | None = None
+    """Unit Cartesian axis of an optional volume-conserving uniaxial cell strain relaxed with λ (None: fixed cell)."""
+
+    def at(self, amplitude_A: float, strain: float = 0.0) -> Crystal:
+        """The distorted structure at amplitude λ = ``amplitude_A`` (largest displacement, Å)."""
+        return self.at_with_shift(amplitude_A, strain)[0]
+
+    def at_with_shift(self, amplitude_A: float, strain: float = 0.0) -> tuple[Crystal, np.ndarray]:
+        """The distorted structure and, per atom, the integer lattice shift its wrapping into the cell applied.
+
+        A bond (i, j, image) of the reference stays the same physical bond at amplitude λ with image
+        ``image + shift[j] - shift[i]`` (see `follow_bonds`). ``strain`` ε stretches the cell by 1 + ε along
+        ``strain_axis`` at constant volume (for the rhombohedral split: changes the rhombohedral angle).
+        """
+        ref = self.reference
+        frac = ref.frac + float(amplitude_A) * self.pattern_A @ np.linalg.inv(ref.lattice_A)
+        lattice = ref.lattice_A
+        if strain:
+            if self.strain_axis is None:
+                raise ParameterError(f"the {self.generator} family has no strain axis; strain must be 0")
+            n = np.asarray(self.strain_axis)
+            s = (np.eye(3) + float(strain) * np.outer(n, n)) / (1.0 + float(strain)) ** (1 / 3)
+            lattice = lattice @ s
+        crystal = Crystal(lattice, frac, ref.species, ref.labels, min_distance_A=ref.min_distance_A)
+        shift = np.rint(frac - crystal.frac).astype(int)
+        return crystal, shift
+
+    @property
+    def n_atoms(self) -> int:
+        """Atoms in the supercell."""
+        return self.reference.n_atoms
+
+
+# ----------------------------------------------------------------------------------------------- helpers
+def _vec(v) -> str:
+    return "[" + ", ".join(f"{x + 0.0:.3g}" for x in np.asarray(v, dtype=float)) + "]"
+
+
+def fraction_label(q) -> str:
+    """'(1/2, 0, 1/3)' for a rational vector."""
+    return "(" + ", ".join(str(Fraction(float(x)).limit_denominator(24)) for x in q) + ")"
+
+
+def _rationalise(q, max_denominator: int = 12) -> np.ndarray:
+    q = np.asarray(q, dtype=float)
+    fr = [Fraction(float(x)).limit_denominator(max_denominator) for x in q]
+    if np.max(np.abs(np.array([float(f) for f in fr]) - q)) > 1e-6:
+        raise ParameterError(
+            f"q = {q.tolist()} is not commensurate: give components as fractions with denominators up to "
+            f"{max_denominator}, e.g. 1/2, 1/3, 1/4"
+        )
+    return np.array([float(f) for f in fr])
+
+
+def commensurate_supercell(q_frac, lattice_A) -> np.ndarray:
+    """Smallest integer matrix M whose rows n_i satisfy q·n_i ∈ Z, preferring short Cartesian vectors.
+
+    The supercell of index N / gcd(N, N q) holds the modulation exp(2πi q·n) with period one.
+    """
+    q = _rationalise(q_frac)
+    fr = [Fraction(float(x)).limit_denominator(12) for x in q]
+    den = int(np.lcm.reduce([f.denominator for f in fr]))
+    num = np.array([int(f * den) for f in fr])
+    index = den // int(np.gcd.reduce(np.append(num, den)))
+    if index == 1:
+        return np.eye(3, dtype=int)
+    span = range(-index, index + 1)
+    cands = np.array([n for n in itertools.product(span, span, span) if any(n)])
+    ok = np.mod(cands @ num, den) == 0
+    cands = cands[ok]
+    lengths = np.linalg.norm(cands @ np.asarray(lattice_A, dtype=float), axis=1)
+    cands = cands[np.lexsort((np.abs(cands).sum(1), lengths))]
+    # greedy shortest basis; the third vector must make the index exact
+    for a, b in itertools.combinations(range(min(len(cands), 40)), 2):
+        v1, v2 = cands[a], cands[b]
+        if np.linalg.norm(np.cross(v1, v2)) < 1e-9:
+            continue
+        for v3 in cands:
+            d = round(float(np.linalg.det(np.array([v1, v2, v3]))))
+            if abs(d) == index:
+                m = np.array([v1, v2, v3 if d > 0 else -v3])
+                return m
+    raise ParameterError(f"could not build a commensurate supercell for q = {fraction_label(q)}")
+
+
+def _build_family(parent: Crystal, generator: str, description: str, q_frac, polarisation_cart,
+                  phase: float | None = None) -> DistortionFamily | None:
+    """Displacement pattern u_j ∝ e cos(2π q·x_j + φ) on the commensurate supercell; None if it moves nothing."""
+    # q itself sets the phases of basis atoms; only q modulo the reciprocal lattice is reported and sets the cell
+    q = _rationalise(q_frac)
+    q_reduced = q - np.floor(q + 1e-9)
+    m = commensurate_supercell(q_reduced, parent.lattice_A)
+    ref = parent.supercell(m)
+    # parent-fractional coordinates of every supercell atom (parent atom + lattice translation)
+    x_parent = ref.frac @ m
+    e = np.asarray(polarisation_cart, dtype=float)
+    e = e / np.linalg.norm(e)
+    phases = [phase] if phase is not None else [0.0, np.pi / 4, np.pi / 2]
+    best = None
+    for phi in phases:
+        c = np.cos(2 * np.pi * (x_parent @ q) + phi)
+        c[np.abs(c) < 1e-12] = 0.0
+        score = np.mean(np.abs(c))
+        if best is None or score > best[0] + 1e-9:
+            best = (score, c, phi)
+    _, c, phi = best
+    if np.max(np.abs(c)) < 1e-9:
+        return None
+    pattern = c[:, None] * e[None, :] / np.max(np.abs(c))
+    return DistortionFamily(
+        generator=generator,
+        description=description,
+        q_frac=tuple(float(x) for x in q_reduced),
+        q_label=fraction_label(q_reduced),
+        supercell_matrix=m,
+        reference=ref,
+        pattern_A=pattern,
+        polarisation=tuple(float(x) for x in e),
+    )
+
+
+def nearest_neighbour_bonds(crystal: Crystal, tolerance: float = SHELL_TOLERANCE):
+    """The first neighbour shell of every atom: NeighbourList of pairs with d ≤ (1 + tolerance)·d_min(atom i)."""
+    d_guess = crystal._shortest_contact()[0]
+    nl = find_neighbours(crystal.lattice_A, crystal.frac, d_guess * (1 + tolerance) * 1.0001 + 1e-6)
+    dmin_i = np.full(crystal.n_atoms, np.inf)
+    np.minimum.at(dmin_i, nl.i, nl.distance_A)
+    keep = nl.distance_A <= dmin_i[nl.i] * (1 + tolerance)
+    return type(nl)(nl.i[keep], nl.j[keep], nl.image[keep], nl.vector_A[keep], nl.distance_A[keep])
+
+
+def bonded_directions(crystal: Crystal) -> np.ndarray:
+    """(3,) bool: True along lattice vectors that some nearest-neighbour bond crosses."""
+    return np.any(nearest_neighbour_bonds(crystal).image != 0, axis=0)
+
+
+def follow_bonds(i: np.ndarray, j: np.ndarray, image: np.ndarray, shift: np.ndarray) -> np.ndarray:
+    """Bond images after atoms were wrapped by integer ``shift`` (see DistortionFamily.at_with_shift)."""
+    return image + shift[j] - shift[i]
+
+
+def _point_group_cart(crystal: Crystal, symprec: float) -> np.ndarray:
+    """Point-group rotations of ``crystal`` as Cartesian matrices acting on column vectors."""
+    rots = analyse(crystal, symprec).rotations
+    lat = crystal.lattice_A
+    # x_frac' = R x_frac with r = L^T x  ->  r' = L^T R L^-T r
+    return np.einsum("ij,njk,kl->nil", lat.T, rots, np.linalg.inv(lat.T))
+
+
+def _distinct_directions(vectors: np.ndarray, rot_cart: np.ndarray) -> list[np.ndarray]:
+    """Representatives of symmetry-distinct directions (a direction and its opposite are the same)."""
+    units = vectors / np.linalg.norm(vectors, axis=1, keepdims=True)
+    reps: list[np.ndarray] = []
+    for u in units:
+        images = rot_cart @ u
+        if any(np.any(np.abs(np.abs(images @ r) - 1) < 1e-4) for r in reps):
+            continue
+        reps.append(u)
+    return reps
+
+
+# ----------------------------------------------------------------------------------------------- generators
+def dimerise(parent: Crystal, symprec: float = SYMPREC_A) -> list[DistortionFamily]:
+    """One family per symmetry-distinct nearest-neighbour bond direction: a longitudinal zone-boundary mode.
+
+    The cell doubles along the chain and sites move alternately along the bond, so consecutive bonds of that
+    direction become short/long. q is the shortest half reciprocal-lattice vector h/2 with q·b ≡ 1/2 for every
+    bond b of that direction (most nearly parallel to the chain).
+    """
+    nl = nearest_neighbour_bonds(parent)
+    rot = _point_group_cart(parent, symprec)
+    bond_frac = parent.frac[nl.j] + nl.image - parent.frac[nl.i]
+    rec = parent.reciprocal_A
+    h_all = np.array([h for h in itertools.product((-1, 0, 1), repeat=3) if any(h)], dtype=float)
+    families = []
+    for u in _distinct_directions(nl.vector_A, rot):
+        par = np.abs(np.abs(nl.vector_A @ u) / nl.distance_A - 1) < 1e-4
+        bf = bond_frac[par]
+        best = None
+        for h in h_all:
+            q = h / 2
+            if np.all(np.abs(np.mod(bf @ q, 1.0) - 0.5) < 1e-6):
+                length = np.linalg.norm(q @ rec)
+                if best is None or length < best[0] - 1e-9:
+                    best = (length, q)
+        if best is None:
+            continue
+        ucart = u if np.dot(u, [1, 2, 3]) >= 0 else -u
+        fam = _build_family(
+            parent, "dimerise",
+            f"bonds along {_vec(ucart)} alternate short/long "
+            f"(d = {nl.distance_A[par][0]:.3f} Å); cell doubled along the chain",
+            best[1], ucart, phase=0.0,
+        )
+        if fam is not None:
+            families.append(fam)
+    return families
+
+
+def _cubic_axes(parent: Crystal):
+    """Three orthogonal unit vectors if every atom's first shell is six bonds along ±three orthogonal axes."""
+    nl = nearest_neighbour_bonds(parent)
+    counts = np.bincount(nl.i, minlength=parent.n_atoms)
+    if not np.all(counts == 6):
+        return None, nl
+    units = nl.vector_A / nl.distance_A[:, None]
+    axes = _distinct_directions(units[nl.i == 0], np.eye(3)[None])
+    if len(axes) != 3:
+        return None, nl
+    axes = np.array(axes)
+    if np.max(np.abs(axes @ axes.T - np.eye(3))) > 0.05:
+        return None, nl
+    for a in range(parent.n_atoms):
+        ua = units[nl.i == a]
+        if not np.all(np.max(np.abs(ua @ axes.T), axis=1) > 0.95):
+            return None, nl
+    return axes, nl
+
+
+def rhombohedral_split(parent: Crystal, symprec: float = SYMPREC_A, relax_cell: bool = False
+                       ) -> list[DistortionFamily]:
+    """For (pseudo-)simple-cubic bond networks: sites move alternately along a body diagonal.
+
+    Each site gets 3 short and 3 long bonds; a simple-cubic parent becomes R-3m (the A7 type). The wave-vector
+    is the body-diagonal zone-boundary point of the simple-cubic bond network, q = (1,1,1)/(2 d) in the cubic
+    axes, expressed in the parent's reciprocal basis. ``relax_cell`` lets the comparator relax the rhombohedral
+    angle (a volume-conserving stretch along the same diagonal) together with the displacement.
+    """
+    axes, nl = _cubic_axes(parent)
+    if axes is None:
+        return []
+    d = float(np.mean(nl.distance_A))
+    # orient axes right-handed so the diagonal is well defined; sign choice does not matter by symmetry
+    diag = axes.sum(axis=0)
+    diag /= np.linalg.norm(diag)
+    q_cart = axes.sum(axis=0) / (2 * d)
+    q_frac = q_cart @ parent.lattice_A.T
+    fam = _build_family(
+        parent, "rhombohedral-split",
+        "sites move alternately along a body diagonal of the simple-cubic bond network: 3 short + 3 long bonds"
+        + ("; rhombohedral angle relaxed" if relax_cell else ""),
+        q_frac, diag, phase=0.0,
+    )
+    if fam is not None and relax_cell:
+        fam = replace(fam, strain_axis=tuple(float(x) for x in diag))
+    return [fam] if fam is not None else []
+
+
+def modulate(parent: Crystal, q_frac, polarisation="longitudinal", phase: float = 0.0) -> DistortionFamily:
+    """A commensurate displacement wave u_j = λ e cos(2π q·x_j + φ) with a chosen polarisation.
+
+    ``polarisation``: 'longitudinal' (along q, the default) or a Cartesian vector (e.g. a bond direction).
+    """
+    q = _rationalise(q_frac)
+    if isinstance(polarisation, str):
+        if polarisation != "longitudinal":
+            raise ParameterError(
+                f"polarisation must be 'longitudinal' or a Cartesian vector, got {polarisation!r}"
+            )
+        e = q @ parent.reciprocal_A
+        if np.linalg.norm(e) < 1e-12:
+            raise ParameterError("a longitudinal modulation needs q ≠ 0; give a polarisation vector for q = 0")
+        kind = "longitudinal"
+    else:
+        e = np.asarray(polarisation, dtype=float)
+        if e.shape != (3,) or np.linalg.norm(e) < 1e-12:
+            raise ParameterError(f"polarisation vector must be 3 numbers, not all zero; got {polarisation!r}")
+        kind = f"along {_vec(e / np.linalg.norm(e))}"
+    fam = _build_family(parent, "modulate", f"{kind} displacement wave at q = {fraction_label(q)}", q, e, phase)
+    if fam is None:
+        raise ParameterError(f"the modulation at q = {fraction_label(q)} with phase {phase} moves no atom")
+    return fam
+
+
+def zone_boundary_points(parent: Crystal, symprec: float = SYMPREC_A) -> list[np.ndarray]:
+    """Symmetry-distinct non-zero time-reversal-invariant points q ∈ {0, 1/2}³ of the parent's reciprocal cell."""
+    rots = analyse(parent, symprec).rotations
+    bonded = bonded_directions(parent)
+    out: list[np.ndarray] = []
+    for h in itertools.product((0, 0.5), repeat=3):
+        q = np.array(h)
+        # a wave along a direction no bond crosses (vacuum) only moves isolated pieces rigidly
+        if not q.any() or np.any(q[~bonded] != 0):
+            continue
+        # k transforms with the transpose of the fractional rotation
+        star = np.einsum("nji,j->ni", rots, q)
+        if any(np.any(np.all(np.abs(np.mod(star - p + 1e-9, 1.0) - 1e-9) < 1e-6, axis=1)) for p in out):
+            continue
+        out.append(q)
+    return out
+
+
+def _same_mode(a: DistortionFamily, b: DistortionFamily, rot_frac: np.ndarray, rot_cart: np.ndarray) -> bool:
+    """True if b is a symmetry image of a (same q star and polarisation)."""
+    qa, qb = np.array(a.q_frac), np.array(b.q_frac)
+    star = np.einsum("nji,j->ni", rot_frac, qa)
+    diff = star - qb
+    q_match = np.all(np.abs(diff - np.round(diff)) < 1e-6, axis=1)
+    e_match = np.abs(np.abs((rot_cart @ np.array(a.polarisation)) @ np.array(b.polarisation)) - 1) < 1e-6
+    return bool(np.any(q_match & e_match))
+
+
+def default_candidates(parent: Crystal, generators=None, extra_q=(), symprec: float = SYMPREC_A,
+                       relax_cell: bool = False) -> list[DistortionFamily]:
+    """The default candidate set: every applicable dimerise and rhombohedral-split, plus longitudinal modulations
+    at the zone-boundary points of the parent's cell; duplicates by symmetry are dropped (first name wins).
+
+    ``generators`` restricts the set (names from GENERATORS); ``extra_q`` adds longitudinal modulations;
+    ``relax_cell`` relaxes the rhombohedral angle of the rhombohedral split.
+    """
+    gens = tuple(generators) if generators else GENERATORS
+    bad = [g for g in gens if g not in GENERATORS]
+    if bad:
+        raise ParameterError(f"unknown generator {bad[0]!r}; choose from {', '.join(GENERATORS)}")
+    fams: list[DistortionFamily] = []
+    if "dimerise" in gens:
+        fams += dimerise(parent, symprec)
+    if "rhombohedral-split" in gens:
+        fams += rhombohedral_split(parent, symprec, relax_cell=relax_cell)
+    qs = [np.asarray(q, dtype=float) for q in extra_q]
+    if "modulate" in gens:
+        qs = [q for q in zone_boundary_points(parent, symprec)] + qs
+    for q in qs:
+        try:
+            fams.append(modulate(parent, q))
+        except ParameterError:
+            if any(np.allclose(q, x) for x in extra_q):
+                raise
+    rot_frac = analyse(parent, symprec).rotations
+    rot_cart = _point_group_cart(parent, symprec)
+    unique: list[DistortionFamily] = []
+    for f in fams:
+        if not any(_same_mode(u, f, rot_frac, rot_cart) for u in unique):
+            unique.append(f)
+    return unique
+

@@ -1,0 +1,209 @@
+"""The ranked verdict: every candidate distortion of a parent, most favourable first."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import pandas as pd
+from tqdm.auto import tqdm
+
+from screener.screen.balance import (
+    CandidateResult,
+    ParentEnergetics,
+    ScreenSettings,
+    evaluate_family,
+    parent_energetics,
+)
+from screener.screen.generators import default_candidates
+from screener.structure.crystal import Crystal
+from screener.structure.elements import HAZARDOUS
+from screener.structure.symmetry import analyse
+
+CAUTION = (
+    "A screen, not a substitute for DFT or experiment: tight binding with universal parameters is qualitative; "
+    "confirm any instability with first-principles phonons or total energies before acting on it."
+)
+
+
+def safety_note(crystal: Crystal) -> str:
+    """One line naming toxic or radioactive elements present, or ''."""
+    bad = sorted({s for s in crystal.species if s in HAZARDOUS})
+    if not bad:
+        return ""
+    return (f"Contains {', '.join(bad)} (toxic or radioactive): follow your lab's safety rules before any "
+            "synthesis or handling.")
+
+
+@dataclass(frozen=True)
+class RankResult:
+    """A parent structure and its candidate distortions, most favourable first."""
+
+    formula: str
+    """Formula of the parent cell."""
+    space_group_symbol: str
+    """Parent space group (Hermann–Mauguin)."""
+    space_group_number: int
+    """Parent space-group number."""
+    valence_electrons_per_cell: float
+    """Valence electrons in the parent cell."""
+    n_atoms: int
+    """Atoms in the parent cell."""
+    parent: ParentEnergetics
+    """Parent band energy, Fermi level and fitted repulsion."""
+    candidates: tuple[CandidateResult, ...]
+    """Candidates sorted by ΔE, most negative first."""
+    settings: ScreenSettings
+    """Numerical settings used."""
+    safety: str
+    """Safety line for hazardous elements ('' if none)."""
+    parent_structure: Crystal
+    """The parent structure as screened."""
+    params: object
+    """The ParameterSet used."""
+
+    @property
+    def fermi_level_eV(self) -> float:
+        """Fermi level of the parent, eV."""
+        return self.parent.fermi_level_eV
+
+    def table(self) -> pd.DataFrame:
+        """The ranked table, one row per candidate (rank 1 = most favourable)."""
+        rows = [
+            {
+                "rank": n,
+                "generator": c.generator,
+                "q": c.q_label,
+                "supercell_atoms": c.supercell_atoms,
+                "space_group": f"{c.space_group_symbol} ({c.space_group_number})",
+                "displacement_A": round(c.amplitude_A, 4),
+                "delta_E_meV_per_atom": round(c.delta_E_meV_per_atom, 3),
+                "delta_E_band_meV_per_atom": round(c.delta_E_band_meV_per_atom, 3),
+                "delta_E_elastic_meV_per_atom": round(c.delta_E_elastic_meV_per_atom, 3),
+                "gap_eV": round(c.gap_eV, 3),
+                "shell_distances_A": " / ".join(f"{d:.3f}" for d in c.shell_distances_A),
+                "verdict": c.verdict,
+                "converged": c.converged,
+                "survives_stiffer_repulsion": c.survives_stiffer_repulsion,
+                "kmesh": "x".join(str(k) for k in c.kmesh),
+                "note": c.note,
+            }
+            for n, c in enumerate(self.candidates, start=1)
+        ]
+        return pd.DataFrame(rows)
+
+    def to_dict(self) -> dict:
+        """JSON-ready summary (keys documented in the README)."""
+        return {
+            "formula": self.formula,
+            "space_group": {"symbol": self.space_group_symbol, "number": self.space_group_number},
+            "n_atoms": self.n_atoms,
+            "valence_electrons_per_cell": self.valence_electrons_per_cell,
+            "fermi_level_eV": self.fermi_level_eV,
+            "parent": {
+                "band_energy_eV_per_atom": self.parent.band_energy_eV_per_atom,
+                "gap_eV": self.parent.gap_eV,
+                "kmesh": list(self.parent.kmesh),
+                "pair_repulsion_eV": self.parent.repulsion_eV,
+                "pair_exponent": self.parent.pair_exponent,
+            },
+            "candidates": [
+                {
+                    "generator": c.generator,
+                    "description": c.description,
+                    "q": list(c.q_frac),
+                    "q_label": c.q_label,
+                    "supercell_atoms": c.supercell_atoms,
+                    "space_group": {"symbol": c.space_group_symbol, "number": c.space_group_number},
+                    "displacement_A": c.amplitude_A,
+                    "delta_E_meV_per_atom": c.delta_E_meV_per_atom,
+                    "delta_E_band_meV_per_atom": c.delta_E_band_meV_per_atom,
+                    "delta_E_elastic_meV_per_atom": c.delta_E_elastic_meV_per_atom,
+                    "gap_eV": c.gap_eV,
+                    "shell_distances_A": list(c.shell_distances_A),
+                    "verdict": c.verdict,
+                    "converged": c.converged,
+                    "survives_stiffer_repulsion": c.survives_stiffer_repulsion,
+                    "cell_strain": c.cell_strain,
+                    "kmesh": list(c.kmesh),
+                    "note": c.note,
+                    "scan": {
+                        "amplitude_A": list(c.scan_amplitude_A),
+                        "delta_E_meV_per_atom": list(c.scan_delta_E_meV_per_atom),
+                        "delta_E_band_meV_per_atom": list(c.scan_delta_E_band_meV_per_atom),
+                        "delta_E_elastic_meV_per_atom": list(c.scan_delta_E_elastic_meV_per_atom),
+                    },
+                }
+                for c in self.candidates
+            ],
+            "settings": {
+                "kspacing_per_A": self.settings.kspacing_per_A,
+                "method": self.settings.method,
+                "threshold_meV_per_atom": self.settings.threshold_meV_per_atom,
+                "convergence_meV_per_atom": self.settings.convergence_meV_per_atom,
+            },
+            "caution": CAUTION,
+            "safety": self.safety,
+        }
+
+
+def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings: ScreenSettings | None = None,
+         progress: bool = True, relax_cell: bool = False) -> RankResult:
+    """Generate the candidate distortions of ``crystal``, evaluate each and rank them.
+
+    Parameters
+    ----------
+    crystal : the parent structure.
+    params : a ParameterSet (default: built-in universal parameters for the elements present).
+    generators : names of generators to run (default: all applicable).
+    extra_q : extra longitudinal modulation wave-vectors (fractions of the parent's reciprocal vectors).
+    settings : numerical settings (ScreenSettings()).
+    progress : show a progress bar on stderr when the work takes more than a second.
+    relax_cell : relax the rhombohedral angle together with the rhombohedral split (slower).
+    """
+    from screener.tb.params import default_parameters
+
+    settings = settings or ScreenSettings()
+    if params is None:
+        params = default_parameters(sorted(set(crystal.species)))
+    sym = analyse(crystal, settings.symprec_A)
+    families = default_candidates(crystal, generators, extra_q, settings.symprec_A, relax_cell=relax_cell)
+    bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
+               disable=not progress, leave=False)
+    try:
+        parent = parent_energetics(crystal, params, settings)
+        results = [evaluate_family(f, params, parent, settings, progress=bar) for f in families]
+    finally:
+        bar.close()
+    results.sort(key=lambda c: (c.delta_E_meV_per_atom, c.generator))
+    return RankResult(
+        formula=crystal.formula,
+        space_group_symbol=sym.symbol,
+        space_group_number=sym.number,
+        valence_electrons_per_cell=parent.valence_electrons_per_cell,
+        n_atoms=crystal.n_atoms,
+        parent=parent,
+        candidates=tuple(results),
+        settings=settings,
+        safety=safety_note(crystal),
+        parent_structure=crystal,
+        params=params,
+    )
+
+
+def verdict_summary(result: RankResult) -> str:
+    """One line: the best candidate and its verdict."""
+    if not result.candidates:
+        return f"{result.formula}: no applicable candidate distortion"
+    best = result.candidates[0]
+    word = {"unstable": "UNSTABLE", "marginal": "marginal", "stable": "stable"}[best.verdict]
+    why = ""
+    if best.verdict == "marginal":
+        if not best.converged:
+            why = " (not k-converged)"
+        elif not best.survives_stiffer_repulsion:
+            why = " (gain vanishes with a stiffer repulsion)"
+        else:
+            why = " (gain below the threshold)"
+    return (f"{result.formula} ({result.space_group_symbol}): {word}{why} — best {best.generator} "
+            f"q={best.q_label} → {best.space_group_symbol}, ΔE = {best.delta_E_meV_per_atom:.2f} meV/atom, "
+            f"gap {best.gap_eV:.2f} eV")

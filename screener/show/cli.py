@@ -1,0 +1,341 @@
+"""Command-line interface: parses arguments, calls the library, formats results. One function per subcommand."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+
+from screener.errors import ScreenerError
+
+
+def _add_structure_args(p: argparse.ArgumentParser) -> None:
+    p.add_argument("file", help="structure file (CIF, POSCAR/CONTCAR/.vasp, or screener JSON)")
+    p.add_argument("--format", choices=["cif", "poscar", "json"], help="override the format guessed from the name")
+    p.add_argument("--species", help="comma-separated element symbols for an old-style POSCAR without a species line")
+    p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
+
+
+def _read(args):
+    from screener.structure.formats import read_structure
+
+    options = {}
+    if getattr(args, "species", None):
+        options["species"] = [s.strip() for s in args.species.split(",") if s.strip()]
+    return read_structure(args.file, format=args.format, **options)
+
+
+def _print_json(obj) -> None:
+    print(json.dumps(obj, indent=2))
+
+
+# ---------------------------------------------------------------------------------------------- info
+def cmd_info(args) -> int:
+    """Structure summary. ``--json`` prints one object with the keys
+
+    ``file``, ``formula`` (this cell), ``n_atoms``, ``space_group`` {``symbol``, ``number``}, ``symprec_A``,
+    ``primitive_atoms``, ``lattice_A`` (rows, Å), ``cell`` {``a_A`` … ``gamma_deg``, ``volume_A3``,
+    ``volume_per_atom_A3``}, ``sites`` [{``label``, ``element``, ``frac``, ``wyckoff`` (multiplicity + letter
+    in the conventional cell), ``orbit`` (label of the first symmetry-equivalent atom)}], ``valence_electrons``
+    (per cell, default counts), ``neighbour_shells_A`` [{``distance_A``, ``count_per_atom``}] (shells up to 1.6 ×
+    the shortest contact, counts averaged over all atoms). The object also reads back as a screener JSON structure.
+    """
+    import numpy as np
+
+    from screener.structure.elements import valence_electrons
+    from screener.structure.formats.cif import cell_parameters
+    from screener.structure.symmetry import analyse, standard_cell
+
+    crystal = _read(args)
+    sym = analyse(crystal, symprec=args.symprec)
+    n_conventional = standard_cell(crystal, symprec=args.symprec).n_atoms
+    a, b, c, alpha, beta, gamma = cell_parameters(crystal.lattice_A)
+    orbit_size = {int(r): int(n) for r, n in zip(*np.unique(sym.equivalent_atoms, return_counts=True), strict=True)}
+    # Wyckoff multiplicity counts the orbit in the conventional cell: the orbit's share of atoms is cell-independent
+    mult = {r: round(n * n_conventional / crystal.n_atoms) for r, n in orbit_size.items()}
+    wyckoff = [f"{mult[int(r)]}{w}" for r, w in zip(sym.equivalent_atoms, sym.wyckoff, strict=True)]
+    shells = crystal.neighbour_shells()
+    n_val = float(sum(valence_electrons(s) for s in crystal.species))
+    summary = {
+        "file": str(args.file),
+        "formula": crystal.formula,
+        "n_atoms": crystal.n_atoms,
+        "space_group": {"symbol": sym.symbol, "number": sym.number},
+        "symprec_A": sym.symprec_A,
+        "primitive_atoms": sym.primitive_atoms,
+        "lattice_A": crystal.lattice_A.tolist(),
+        "cell": {"a_A": a, "b_A": b, "c_A": c, "alpha_deg": alpha, "beta_deg": beta, "gamma_deg": gamma,
+                 "volume_A3": crystal.volume_A3, "volume_per_atom_A3": crystal.volume_A3 / crystal.n_atoms},
+        "sites": [
+            {"label": lab, "element": el, "frac": f.tolist(), "wyckoff": w,
+             "orbit": crystal.labels[int(r)]}
+            for lab, el, f, w, r in zip(crystal.labels, crystal.species, crystal.frac, wyckoff,
+                                        sym.equivalent_atoms, strict=True)
+        ],
+        "valence_electrons": n_val,
+        "neighbour_shells_A": [{"distance_A": s.distance_A, "count_per_atom": s.count_per_atom} for s in shells],
+    }
+    if args.json:
+        _print_json(summary)
+        return 0
+    out = [
+        f"file              {args.file}",
+        f"formula           {crystal.formula}  ({crystal.n_atoms} atoms in this cell, "
+        f"{sym.primitive_atoms} in the primitive cell)",
+        f"space group       {sym.symbol} (No. {sym.number}), symprec {sym.symprec_A:g} Å",
+        f"cell              a={a:.4f} b={b:.4f} c={c:.4f} Å   α={alpha:.3f} β={beta:.3f} γ={gamma:.3f}°",
+        f"volume            {crystal.volume_A3:.3f} Å^3  ({crystal.volume_A3 / crystal.n_atoms:.3f} Å^3 per atom)",
+        f"valence electrons {n_val:g} per cell ({n_val / crystal.n_atoms:g} per atom, default counts)",
+        "",
+        "symmetry-distinct sites",
+        f"  {'label':<10} {'element':<7} {'Wyckoff':<7} {'in cell':>7}   {'x':>8} {'y':>8} {'z':>8}",
+    ]
+    for r in orbit_size:
+        x, y, z = crystal.frac[r]
+        out.append(f"  {crystal.labels[r]:<10} {crystal.species[r]:<7} {wyckoff[r]:<7} {orbit_size[r]:>7}   "
+                   f"{x:8.5f} {y:8.5f} {z:8.5f}")
+    out += ["", "neighbour shells (averaged over atoms)", f"  {'distance (Å)':>12} {'neighbours per atom':>20}"]
+    out += [f"  {s.distance_A:12.4f} {s.count_per_atom:20g}" for s in shells]
+    print("\n".join(out))
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------- bands
+#: Bands listed per special point in the text table; more would not fit a terminal line.
+_BANDS_SHOWN = 12
+
+
+def _bands_text(args, crystal, model, path, energies, result, params_note) -> str:
+    import numpy as np
+
+    ef = result.fermi_level_eV
+    gap = f"{result.gap_eV:.4f} eV" if result.gap_eV > 0 else "0 (metal or partly filled band)"
+    route = " | ".join("–".join(lab for lab in piece) for piece in _path_pieces(path))
+    out = [
+        f"file              {args.file}",
+        f"formula           {crystal.formula}  ({crystal.n_atoms} atoms, {model.n_orbitals} orbitals, "
+        f"{model.n_electrons:g} valence electrons per cell)",
+        f"parameters        {params_note}",
+        f"path              {path.lattice_type}: {route}  ({len(path.kfrac)} k-points)",
+        f"k-mesh            {'×'.join(str(m) for m in result.mesh)} ({result.n_kpoints_irreducible} irreducible), "
+        f"{result.method}",
+        f"Fermi level       {ef:.4f} eV",
+        f"band energy       {result.band_energy_eV:.4f} eV per cell ({result.band_energy_eV / crystal.n_atoms:.4f} "
+        "eV per atom)",
+        f"gap               {gap}",
+        "",
+    ]
+    nb = energies.shape[1]
+    lo = 0
+    if nb > _BANDS_SHOWN:
+        # the bands nearest E_F matter most: centre the window on the last band below it
+        below = int(np.searchsorted(np.sort(energies.mean(axis=0)), ef))
+        lo = int(np.clip(below - _BANDS_SHOWN // 2, 0, nb - _BANDS_SHOWN))
+    hi = min(nb, lo + _BANDS_SHOWN)
+    which = f"bands {lo + 1}–{hi} of {nb}" if (lo, hi) != (0, nb) else f"all {nb} bands"
+    out.append(f"energies at the special points, E − E_F in eV ({which})")
+    out.append(f"  {'point':<8} {'k (fractions of reciprocal vectors)':<26}  energies")
+    seen = set()
+    for idx, label in path.vertices:
+        if label in seen:
+            continue
+        seen.add(label)
+        k = " ".join(f"{x:8.4f}" for x in path.kfrac[idx])
+        e = " ".join(f"{x:8.3f}" for x in energies[idx, lo:hi] - ef)
+        out.append(f"  {label:<8} {k:<26}  {e}")
+    return "\n".join(out)
+
+
+def _path_pieces(path):
+    pieces = []
+    for start, stop in path.segments:
+        pieces.append([lab for idx, lab in path.vertices if start <= idx < stop])
+    return pieces
+
+
+def cmd_bands(args) -> int:
+    """Band structure along a path (default: special points of the lattice type), Fermi level, DOS figure.
+
+    JSON: k-points are fractions of the input cell's reciprocal vectors, energies absolute and ascending; labels
+    spell Γ as "Γ" (JSON-escaped as \\u0393), other labels as in Setyawan & Curtarolo (2010) with plain digits.
+    """
+    import numpy as np
+
+    from screener.bz.bands import band_structure
+    from screener.show.figures import plot_band_structure
+
+    crystal = _read(args)
+    params = _parameters_for(crystal, args.params)
+    bs = band_structure(crystal, params, kpoints=args.kpoints, symprec=args.symprec)
+    model, path, energies, character, shells, result = (bs.model, bs.path, bs.energies_eV, bs.character,
+                                                         list(bs.shells), bs.ground_state)
+    params_note = f"{args.params}" if args.params else "built-in universal parameters"
+    if args.plot:
+        plot_band_structure(bs, args.plot)
+    if args.json:
+        _print_json({
+            "file": str(args.file),
+            "formula": crystal.formula,
+            "lattice_type": path.lattice_type,
+            "parameters": params_note,
+            "fermi_level_eV": result.fermi_level_eV,
+            "band_energy_eV": result.band_energy_eV,
+            "gap_eV": result.gap_eV,
+            "n_electrons": model.n_electrons,
+            "mesh": list(result.mesh),
+            "n_kpoints_irreducible": result.n_kpoints_irreducible,
+            "integration": result.method,
+            "labels": [{"index": int(i), "label": lab} for i, lab in path.vertices],
+            "kpoints_frac": path.kfrac.tolist(),
+            "x_inv_A": path.x_inv_A.tolist(),
+            "energies_eV": energies.tolist(),
+            "orbital_groups": shells,
+            "character": np.round(character, 5).tolist(),
+            **({"plot": str(args.plot)} if args.plot else {}),
+        })
+        return 0
+    print(_bands_text(args, crystal, model, path, energies, result, params_note))
+    if args.plot:
+        print(f"\nwrote {args.plot}")
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------- rank
+def _parse_q(text: str):
+    from fractions import Fraction
+
+    from screener.errors import ParameterError
+
+    try:
+        q = [float(Fraction(x.strip())) for x in text.split(",")]
+    except (ValueError, ZeroDivisionError):
+        q = []
+    if len(q) != 3:
+        raise ParameterError(f'--q must be three numbers or fractions like "1/2,0,0", got {text!r}')
+    return q
+
+
+def _screen_settings(args):
+    from screener.screen.balance import ScreenSettings
+
+    return ScreenSettings(
+        kspacing_per_A=args.kspacing,
+        pair_exponent=args.pair_exponent,
+        bulk_modulus_GPa=args.bulk_modulus_GPa,
+        threshold_meV_per_atom=args.threshold_meV,
+        symprec_A=args.symprec,
+    )
+
+
+def _parameters_for(crystal, path):
+    from screener.tb.param_file import load_parameters
+    from screener.tb.params import default_parameters
+
+    elements = sorted(set(crystal.species))
+    return load_parameters(path, elements) if path else default_parameters(elements)
+
+
+def cmd_rank(args) -> int:
+    """Rank candidate distortions of one structure; table on stdout (or JSON with --json)."""
+    from screener.screen.rank import rank
+    from screener.show.report import format_rank_text, write_optimum_structures
+
+    crystal = _read(args)
+    params = _parameters_for(crystal, args.params)
+    q_extra = [_parse_q(q) for q in (args.q or [])]
+    result = rank(crystal, params, generators=args.generator, extra_q=q_extra, settings=_screen_settings(args),
+                  progress=not args.json and not args.quiet, relax_cell=args.relax_cell)
+    if args.csv:
+        result.table().to_csv(args.csv, index=False)
+    written = write_optimum_structures(result, args.write_structures) if args.write_structures else []
+    if args.json:
+        out = result.to_dict()
+        out["file"] = str(args.file)
+        if written:
+            out["structures_written"] = [str(p) for p in written]
+        _print_json(out)
+    else:
+        print(format_rank_text(result, source=str(args.file)))
+        for p in written:
+            print(f"wrote {p}")
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------- demo
+def cmd_demo(args) -> int:
+    """Rank every bundled (invented) demo structure and write a report folder."""
+    from screener.show.report import run_demo
+
+    run_demo(args.out, progress=not args.quiet)
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="screener",
+        description="Screen crystal structures for band-driven (Peierls-type) bond-alternation instabilities.",
+    )
+    parser.add_argument("--debug", action="store_true", help="show full tracebacks on errors")
+    sub = parser.add_subparsers(dest="command", required=True)
+
+    p = sub.add_parser("info", help="structure summary: formula, cell, space group, Wyckoff sites, neighbour shells")
+    _add_structure_args(p)
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
+    p.set_defaults(func=cmd_info)
+
+    p = sub.add_parser("bands", help="tight-binding band structure and DOS")
+    _add_structure_args(p)
+    p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
+    p.add_argument("--kpoints", help='explicit k-points as "x,y,z;x,y,z;..." (fractions of reciprocal vectors)')
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--plot", help="write a band-structure + DOS figure to this PNG file")
+    p.set_defaults(func=cmd_bands)
+
+    p = sub.add_parser("rank", help="rank candidate bond-alternating distortions by energy gain")
+    _add_structure_args(p)
+    p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--csv", help="also write the ranked table to this CSV file")
+    p.add_argument("--generator", action="append", help="candidate generator(s) to run (repeatable)")
+    p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
+    p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
+    p.add_argument("--write-structures", help="write each optimum as CIF into this folder")
+    p.add_argument("--bulk-modulus-GPa", type=float, help="calibrate the repulsion so the parent has this bulk modulus")
+    p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
+    p.add_argument("--threshold-meV", type=float, default=1.0,
+                   help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
+    p.add_argument("--relax-cell", action="store_true",
+                   help="relax the rhombohedral angle together with the rhombohedral split (slower)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_rank)
+
+    p = sub.add_parser("demo", help="rank every bundled invented demo structure and write a report folder")
+    p.add_argument("--out", default="screener-report", help="report folder (default ./screener-report)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_demo)
+    return parser
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args) or 0)
+    except ScreenerError as exc:
+        if args.debug:
+            raise
+        print(f"screener {args.command}: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("screener: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        # output piped into e.g. `head`, which stopped reading: not an error of ours
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

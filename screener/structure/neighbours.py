@@ -1,0 +1,77 @@
+"""Periodic neighbour search (KD-tree over the images a cutoff needs) and neighbour shells."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+
+@dataclass(frozen=True)
+class NeighbourList:
+    """Ordered pairs of atoms within a cutoff, over periodic images."""
+
+    i: np.ndarray
+    """(p,) int, index of the first atom."""
+    j: np.ndarray
+    """(p,) int, index of the second atom."""
+    image: np.ndarray
+    """(p, 3) int, lattice translation (fractional) added to atom j."""
+    vector_A: np.ndarray
+    """(p, 3) float, r_j + image·L − r_i, Å."""
+    distance_A: np.ndarray
+    """(p,) float, bond length, Å."""
+
+
+@dataclass(frozen=True)
+class NeighbourShell:
+    """One shell of equal neighbour distances."""
+
+    distance_A: float
+    """Mean distance of the shell, Å."""
+    count_per_atom: float
+    """Average number of neighbours per atom in this shell."""
+
+
+def find_neighbours(lattice_A, frac, cutoff_A: float, include_zero: bool = False) -> NeighbourList:
+    """Periodic neighbour search with a KD-tree over the images needed to reach ``cutoff_A``."""
+    lattice_A = np.asarray(lattice_A, dtype=float)
+    frac = np.asarray(frac, dtype=float)
+    frac = frac - np.floor(frac)
+    n = len(frac)
+    rec = np.linalg.inv(lattice_A).T
+    spacing = 1.0 / np.linalg.norm(rec, axis=1)  # interplanar spacings, Å
+    reach = np.ceil(cutoff_A / spacing).astype(int)
+    rng = [np.arange(-r, r + 1) for r in reach]
+    images = np.stack(np.meshgrid(*rng, indexing="ij"), axis=-1).reshape(-1, 3)
+    cart = frac @ lattice_A
+    img_cart = images @ lattice_A
+    all_pos = (cart[None, :, :] + img_cart[:, None, :]).reshape(-1, 3)
+    tree = cKDTree(all_pos)
+    hits = tree.query_ball_point(cart, r=cutoff_A + 1e-9)
+    ii = np.repeat(np.arange(n), [len(h) for h in hits])
+    flat = np.fromiter((x for h in hits for x in h), dtype=int, count=len(ii))
+    img_idx, jj = np.divmod(flat, n)
+    image = images[img_idx]
+    vec = all_pos[flat] - cart[ii]
+    dist = np.linalg.norm(vec, axis=1)
+    keep = dist > 1e-8 if not include_zero else ~((ii == jj) & np.all(image == 0, axis=1))
+    order = np.lexsort((dist[keep], ii[keep]))
+    return NeighbourList(
+        i=ii[keep][order],
+        j=jj[keep][order],
+        image=image[keep][order],
+        vector_A=vec[keep][order],
+        distance_A=dist[keep][order],
+    )
+
+
+def group_shells(distances_A: np.ndarray, tol_A: float, n_atoms: int) -> list[NeighbourShell]:
+    """Cluster sorted distances into shells whose members lie within tol_A of the previous member."""
+    d = np.sort(np.asarray(distances_A))
+    if len(d) == 0:
+        return []
+    breaks = np.flatnonzero(np.diff(d) > tol_A) + 1
+    groups = np.split(d, breaks)
+    return [NeighbourShell(float(g.mean()), len(g) / n_atoms) for g in groups]

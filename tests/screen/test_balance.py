@@ -1,0 +1,231 @@
+"""The energy comparator and ranked verdicts against published models and theorems."""
+
+import numpy as np
+import pytest
+
+from screener.errors import ParameterError
+from screener.screen.balance import ScreenSettings, evaluate_family, parent_energetics
+from screener.screen.closure import (
+    ElasticModel,
+    exponent_for_bulk_modulus,
+    pair_repulsion_prefactor_eV,
+)
+from screener.screen.generators import dimerise, rhombohedral_split
+from screener.screen.rank import rank
+from screener.structure.crystal import Crystal
+from screener.tb.param_file import load_parameters
+from screener.tb.params import default_parameters
+
+# Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
+SSH_TOML = """
+[species.C]
+orbitals = ["pz"]
+onsite_eV = {{ pz = 0.0 }}
+valence_electrons = {electrons}
+
+[bond."C-C"]
+law = "linear"
+r0_A = 1.22
+V_eV = {{ pp_pi = -2.5 }}
+slope_eV_per_A = {{ pp_pi = 4.1 }}
+cutoff_A = 1.6
+spring_eV_per_A2 = 21.0
+"""
+
+
+def ssh_chain():
+    # one site per cell along x; 10 Å of vacuum isolates the chain (no hopping crosses y or z)
+    return Crystal(np.diag([1.22, 10.0, 10.0]), [[0, 0, 0]], ["C"])
+
+
+def ssh_params(tmp_path, electrons=1):
+    p = tmp_path / f"ssh_{electrons}.toml"
+    p.write_text(SSH_TOML.format(electrons=electrons))
+    return load_parameters(p, ["C"])
+
+
+def screen_chain(tmp_path, electrons):
+    chain = ssh_chain()
+    params = ssh_params(tmp_path, electrons)
+    settings = ScreenSettings()
+    parent = parent_energetics(chain, params, settings)
+    (fam,) = dimerise(chain)
+    return evaluate_family(fam, params, parent, settings)
+
+
+def test_ssh_chain_dimerisation_matches_published_values(tmp_path):
+    res = screen_chain(tmp_path, electrons=1)
+    # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): u0 ≈ 0.04 Å, gap 2Δ = 8 α u0 ≈ 1.3–1.4 eV,
+    # condensation energy ≈ 13–15 meV per site (values as quoted in the project issue from that paper)
+    assert res.verdict == "unstable" and res.converged
+    assert 0.035 < res.amplitude_A < 0.045
+    assert res.gap_eV == pytest.approx(8 * 4.1 * res.amplitude_A, rel=0.03)
+    assert 1.2 < res.gap_eV < 1.5
+    assert -16.0 < res.delta_E_meV_per_atom < -12.0
+    # bonds alternate 1.22 ∓ 2 u0
+    short, long_ = res.shell_distances_A
+    assert short == pytest.approx(1.22 - 2 * res.amplitude_A, abs=1e-3)
+    assert long_ == pytest.approx(1.22 + 2 * res.amplitude_A, abs=1e-3)
+    # the harmonic lattice term of the SSH model: K/2 (2u)^2 per site
+    assert res.delta_E_elastic_meV_per_atom == pytest.approx(1e3 * 0.5 * 21.0 * (2 * res.amplitude_A) ** 2, rel=1e-6)
+    assert res.space_group_number == 123  # P4/mmm: the dimerised chain in its square box (International Tables A)
+
+
+@pytest.mark.parametrize("electrons", [0, 2])
+def test_full_or_empty_band_does_not_dimerise(tmp_path, electrons):
+    # Peierls theorem (Peierls 1955): only a partly filled band gains; a full or empty one does not
+    res = screen_chain(tmp_path, electrons)
+    assert res.verdict == "stable"
+    assert res.amplitude_A == 0.0
+    assert res.delta_E_band_meV_per_atom == pytest.approx(0.0, abs=1e-9)
+
+
+def simple_cubic(a_A, element="As"):
+    return Crystal(np.eye(3) * a_A, [[0, 0, 0]], [element])
+
+
+# volume per atom of A7 arsenic from its hexagonal cell a = 3.7598 Å, c = 10.5475 Å, Z = 6
+# (Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969)) -> 21.52 Å^3, simple-cubic a = 2.781 Å
+A_SC_AS = (np.sqrt(3) / 2 * 3.7598**2 * 10.5475 / 6) ** (1 / 3)
+# A7 bismuth a = 4.546 Å, c = 11.862 Å, Z = 6 (Cucka & Barrett, Acta Cryst. 15, 865 (1962); from memory)
+A_SC_BI = (np.sqrt(3) / 2 * 4.546**2 * 11.862 / 6) ** (1 / 3)
+
+
+@pytest.mark.parametrize("element, a_A, published_ratio", [
+    # As: 2.517 / 3.120 Å (Schiferl & Barrett 1969) -> 1.240; the screen gives about 2.53 / 3.09 Å -> 1.22,
+    # i.e. the long/short ratio about 2 % below the published one
+    ("As", A_SC_AS, 3.120 / 2.517),
+    # Bi: 3.07 / 3.53 Å (Cucka & Barrett 1962; from memory) -> 1.15; the screen gives about 2.99 / 3.64 Å -> 1.22,
+    # i.e. the alternation about 6 % too strong
+    ("Bi", A_SC_BI, 3.53 / 3.07),
+])
+def test_group15_simple_cubic_splits_into_A7(element, a_A, published_ratio):
+    result = rank(simple_cubic(a_A, element), generators=["rhombohedral-split", "dimerise"], progress=False)
+    best = result.candidates[0]
+    # Peierls picture of the A7 structure: a half-filled p shell on a simple-cubic lattice splits into
+    # 3 short + 3 long bonds, R-3m (International Tables A, No. 166)
+    assert best.generator == "rhombohedral-split"
+    assert best.verdict == "unstable"
+    assert (best.space_group_symbol, best.space_group_number) == ("R-3m", 166)
+    short, long_ = best.shell_distances_A
+    ratio = long_ / short
+    # the screen's ratio depends on the repulsion exponent and the universal parameters: assert a physically
+    # sensible range and closeness to the published ratio within 10 %
+    assert 1.0 < ratio < 1.4
+    assert ratio == pytest.approx(published_ratio, rel=0.10)
+
+
+def test_group16_filling_does_not_split():
+    # alpha-Po is simple cubic: a two-thirds-filled p shell gains nothing from the rhombohedral split
+    # (common practice, no source); Te valence (6 electrons) at the A7-like volume per atom
+    result = rank(simple_cubic(A_SC_AS, "Te"), generators=["rhombohedral-split"], progress=False)
+    assert result.candidates[0].verdict != "unstable"
+
+
+def test_pair_repulsion_holds_parent_in_equilibrium():
+    # Chadi, PRL 41, 1062 (1978): the repulsion is fixed so the parent is stationary under uniform scaling
+    from screener.bz.integrate import solve_on_mesh
+    from screener.tb.bonds import find_bonds
+    from screener.tb.model import build_model
+
+    crystal = simple_cubic(A_SC_AS)
+    params = default_parameters(["As"])
+    settings = ScreenSettings()
+    parent = parent_energetics(crystal, params, settings)
+    assert parent.repulsion_eV > 0
+    bonds = find_bonds(crystal, params)
+    mesh = parent.kmesh
+    from screener.screen.balance import elastic_model_for
+
+    el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent)
+
+    def total(s):
+        c = crystal.replace(lattice_A=crystal.lattice_A * (1 + s))
+        e_band = solve_on_mesh(build_model(c, params, bonds=bonds), mesh).band_energy_eV
+        return e_band + el.energy_eV(c.lattice_A, c.frac)
+
+    h = 0.002
+    slope = (total(h) - total(-h)) / (2 * h)
+    assert abs(slope) < 0.02 * parent.band_slope_eV_per_atom * crystal.n_atoms
+
+
+def test_elastic_helpers_validate_and_follow_formulae():
+    # harmonic spring: ½ K (d − d0)^2 (common practice, no source)
+    el = ElasticModel(np.array([0]), np.array([0]), np.array([[1, 0, 0]]), np.array([2.0]), np.array([0.0]),
+                      np.array([10.0]), 4.0)
+    assert el.energy_eV(np.eye(3) * 2.1, np.zeros((1, 3))) == pytest.approx(0.5 * 10 * 0.1**2)
+    assert pair_repulsion_prefactor_eV(-1.0, 3, 4.0) == 0.0
+    with pytest.raises(ParameterError, match="exponent must be positive"):
+        pair_repulsion_prefactor_eV(1.0, 3, 0.0)
+    with pytest.raises(ParameterError, match="bulk modulus must be positive"):
+        exponent_for_bulk_modulus(-5, 20.0, 1.0, 0.0)
+    with pytest.raises(ParameterError, match="does not favour compression"):
+        exponent_for_bulk_modulus(50, 20.0, -1.0, 0.0)
+    with pytest.raises(ParameterError, match="kspacing_per_A must be a positive number"):
+        ScreenSettings(kspacing_per_A=0)
+
+
+def test_rhombohedral_split_only_for_cubic_networks():
+    chain = ssh_chain()
+    assert rhombohedral_split(chain) == []
+
+
+def fcc_rocksalt(a_A, cation, anion):
+    lat = np.array([[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]]) * a_A
+    return Crystal(lat, [[0, 0, 0], [0.5, 0.5, 0.5]], [cation, anion])
+
+
+def test_closed_shell_rocksalt_is_not_flagged_unstable():
+    # NaCl keeps the rocksalt structure (Fm-3m, a = 5.64 Å) at ambient conditions (handbook value, from memory).
+    # With d^-2 hoppings an equilibrium-fitted d^-4 repulsion is marginal for insulators; the stiffer-repulsion
+    # check must keep a closed-shell insulator out of the 'unstable' class.
+    result = rank(fcc_rocksalt(5.64, "Na", "Cl"), progress=False)
+    assert result.parent.gap_eV > 1.0
+    assert all(c.verdict != "unstable" for c in result.candidates)
+    assert all(c.verdict == "stable" or not c.survives_stiffer_repulsion for c in result.candidates)
+
+
+def test_simple_cubic_polonium_is_not_flagged_unstable():
+    # alpha-Po is simple cubic, a = 3.359 Å (Desando & Lange, J. Inorg. Nucl. Chem. 28, 1837 (1966); from memory)
+    result = rank(simple_cubic(3.359, "Po"), progress=False)
+    assert result.candidates[0].verdict != "unstable"
+
+
+def test_relaxed_rhombohedral_angle_lowers_energy_and_elongates_the_diagonal():
+    crystal = simple_cubic(A_SC_AS)
+    params = default_parameters(["As"])
+    settings = ScreenSettings(kspacing_per_A=0.3, max_refinements=1)
+    parent = parent_energetics(crystal, params, settings)
+    (fixed,) = rhombohedral_split(crystal)
+    (relaxed,) = rhombohedral_split(crystal, relax_cell=True)
+    # the strained cell keeps its volume and the R-3m symmetry (International Tables A, No. 166)
+    c = relaxed.at(0.1, strain=0.1)
+    assert c.volume_A3 == pytest.approx(relaxed.reference.volume_A3, rel=1e-12)
+    from screener.structure.symmetry import analyse
+
+    assert analyse(c).number == 166
+    r_fixed = evaluate_family(fixed, params, parent, settings)
+    r_relaxed = evaluate_family(relaxed, params, parent, settings)
+    # relaxing one more degree of freedom can only lower the optimum (variational, common practice, no source)
+    assert r_relaxed.delta_E_meV_per_atom <= r_fixed.delta_E_meV_per_atom + 0.5
+    # A7 arsenic's rhombohedral angle (54.1°) is below the 60° of the doubled simple-cubic cell: the body
+    # diagonal is elongated (Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969); angle from memory)
+    assert r_relaxed.cell_strain > 0
+    assert r_fixed.cell_strain == 0.0
+
+
+def test_tiny_amplitudes_are_not_folded_with_the_parent_symmetry():
+    # Brillouin-zone folding may only use symmetries the distorted structure has (common practice, no source):
+    # at λ = 1e-4 Å the symmetry-reduced band energy must equal the full-mesh one
+    from screener.bz.integrate import solve_on_mesh
+    from screener.screen.balance import _Evaluator
+    from screener.tb.model import build_model
+
+    crystal = simple_cubic(2.78)
+    params = default_parameters(["As"])
+    (fam,) = rhombohedral_split(crystal)
+    ev = _Evaluator(fam, params, 2.6, 4.0, ScreenSettings())
+    band, _, res = ev.energies_at(1e-4, 0.0, (12, 12, 12))
+    full = solve_on_mesh(build_model(fam.at(1e-4), params, bonds=ev.bonds), (12, 12, 12), use_symmetry=False)
+    assert band * fam.n_atoms == pytest.approx(full.band_energy_eV, abs=1e-9)
+    assert res.n_kpoints_irreducible > 72  # 72 would be the parent's wedge of this mesh

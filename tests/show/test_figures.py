@@ -1,0 +1,105 @@
+"""Figures: PNGs are written with the expected pixel size, inputs are checked, no pyplot state is left behind."""
+
+import numpy as np
+import pytest
+from matplotlib.image import imread
+
+from screener import Crystal, ParameterError
+from screener.bz.routes import band_path
+from screener.show.figures import plot_bands, plot_energy_curves
+
+
+@pytest.fixture(scope="module")
+def cubic_bands():
+    crystal = Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Po"])
+    path = band_path(crystal, points_per_inv_A=15)
+    c = np.cos(2 * np.pi * path.kfrac)
+    # nearest-neighbour simple-cubic s band, Slater & Koster, Phys. Rev. 94, 1498 (1954); parameters invented
+    e_s = -5.0 - 1.0 * c.sum(axis=1)
+    e_p = 1.0 + 2.0 * c - 0.6 * (c.sum(axis=1, keepdims=True) - c)
+    energies = np.concatenate([e_s[:, None], e_p], axis=1)
+    character = np.zeros(energies.shape + (2,))
+    character[:, 0, 0] = 1.0
+    character[:, 1:, 1] = 1.0
+    return path, energies, character
+
+
+def _png_shape(path):
+    return imread(str(path)).shape
+
+
+def _no_pyplot_figures():
+    import sys
+
+    plt = sys.modules.get("matplotlib.pyplot")
+    return plt is None or not plt.get_fignums()
+
+
+def test_plot_bands_with_character_and_dos(tmp_path, cubic_bands):
+    path, energies, character = cubic_bands
+    e = np.linspace(-9, 6, 200)
+    dos = (e, np.exp(-e**2), np.stack([0.3 * np.exp(-e**2), 0.7 * np.exp(-e**2)], axis=1))
+    out = plot_bands(path, energies, 0.3, tmp_path / "b.png", character=character, character_labels=["s", "p"],
+                     dos=dos, title="test")
+    assert out.stat().st_size > 10_000
+    h, w, _ = _png_shape(out)
+    assert (w, h) == (1200, 750)  # 8 x 5 inches at 150 dpi
+    assert _no_pyplot_figures()
+
+
+def test_plot_bands_plain_and_explicit_single_point(tmp_path, cubic_bands):
+    path, energies, _ = cubic_bands
+    out = plot_bands(path, energies, 0.0, tmp_path / "plain.png")
+    assert _png_shape(out)[:2] == (750, 975)  # 6.5 x 5 inches at 150 dpi
+    crystal = Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Po"])
+    one = band_path(crystal, kpoints="0,0,0")
+    out = plot_bands(one, np.array([[-1.0, 2.0]]), 0.0, tmp_path / "one.png")
+    assert out.stat().st_size > 1000
+
+
+def test_plot_bands_rejects_wrong_shapes(tmp_path, cubic_bands):
+    path, energies, character = cubic_bands
+    with pytest.raises(ParameterError, match="energies_eV must have shape"):
+        plot_bands(path, energies[:-1], 0.0, tmp_path / "x.png")
+    with pytest.raises(ParameterError, match="character must have shape"):
+        plot_bands(path, energies, 0.0, tmp_path / "x.png", character=character[:, :2])
+    with pytest.raises(ParameterError, match="character_labels"):
+        plot_bands(path, energies, 0.0, tmp_path / "x.png", character=character, character_labels=["s"])
+    with pytest.raises(ParameterError, match="does not exist"):
+        plot_bands(path, energies, 0.0, tmp_path / "missing" / "x.png")
+    with pytest.raises(ParameterError, match="dos must carry"):
+        plot_bands(path, energies, 0.0, tmp_path / "x.png", dos={"energies_eV": [0, 1]})
+
+
+def test_plot_energy_curves(tmp_path):
+    amp = np.linspace(0, 0.2, 6)
+    curves = [
+        {"label": "a", "amplitude_A": amp, "delta_E_meV_per_atom": -100 * amp**2 + 2000 * amp**4,
+         "band_meV_per_atom": -200 * amp**2, "elastic_meV_per_atom": 100 * amp**2 + 2000 * amp**4},
+        {"label": "b", "amplitude_A": amp[::-1], "delta_E_meV_per_atom": (40 * amp**2)[::-1]},
+    ]
+    out = plot_energy_curves(curves, tmp_path / "c.png", title="t")
+    h, w, _ = _png_shape(out)
+    assert (w, h) == (1050, 720)  # 7 x 4.8 inches at 150 dpi
+    assert out.stat().st_size > 10_000
+    assert _no_pyplot_figures()
+
+
+def test_plot_energy_curves_accepts_result_objects(tmp_path):
+    from types import SimpleNamespace
+
+    amp = (0.0, 0.05, 0.1)
+    res = SimpleNamespace(generator="dimerise", q_label="1/2,0,0", scan_amplitude_A=amp,
+                          scan_delta_E_meV_per_atom=(0.0, -1.0, 2.0), scan_delta_E_band_meV_per_atom=(0, -3, -6),
+                          scan_delta_E_elastic_meV_per_atom=(0, 2, 8), amplitude_A=0.05, delta_E_meV_per_atom=-1.0)
+    assert plot_energy_curves([res], tmp_path / "r.png").stat().st_size > 10_000
+
+
+def test_plot_energy_curves_rejects_bad_input(tmp_path):
+    with pytest.raises(ParameterError, match="at least one curve"):
+        plot_energy_curves([], tmp_path / "x.png")
+    with pytest.raises(ParameterError, match="needs amplitudes and total energies"):
+        plot_energy_curves([{"label": "a"}], tmp_path / "x.png")
+    with pytest.raises(ParameterError, match="band energies have shape"):
+        plot_energy_curves([{"amplitude_A": [0, 1], "delta_E_meV_per_atom": [0, 1], "band_meV_per_atom": [0]}],
+                           tmp_path / "x.png")
