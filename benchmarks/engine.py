@@ -69,7 +69,7 @@ def main(argv=None) -> None:
           f"{model.n_electrons:g} electrons per cell")
     print(f"mesh            {mesh[0]}x{mesh[1]}x{mesh[2]} = {nk} k-points (full, no symmetry)")
 
-    # where the tetrahedron time goes (private pieces of screener.electrons, timed for the owner's benefit); each
+    # where the tetrahedron time goes (private pieces of screener.bz, timed for the owner's benefit); each
     # round starts from a fresh grid, so work it does lazily is charged to the step that first needs it
     from screener.bz.tetra_grid import _TetrahedronGrid
 

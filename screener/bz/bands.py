@@ -19,7 +19,7 @@ class BandStructure:
     model: object
     """The TightBindingModel used."""
     path: object
-    """kspace.BandPath: k-points (fractions of the input cell's reciprocal vectors), ticks, labels."""
+    """routes.BandPath: k-points (fractions of the input cell's reciprocal vectors), ticks, labels."""
     energies_eV: np.ndarray
     """(nk, nb) absolute band energies along the path, ascending, eV."""
     shells: tuple[str, ...]
@@ -27,7 +27,7 @@ class BandStructure:
     character: np.ndarray
     """(nk, nb, n_shells) weight of each shell in every state (sums to 1)."""
     ground_state: object
-    """electrons.BandEnergyResult on the default mesh (Fermi level, band energy, gap)."""
+    """integrate.BandEnergyResult on the default mesh (Fermi level, band energy, gap)."""
 
 
 def orbital_groups(model) -> tuple[tuple[str, ...], np.ndarray]:

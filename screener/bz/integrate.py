@@ -151,12 +151,14 @@ def integrate(eigs_ir_eV, kmesh: IrreducibleMesh, n_electrons, *, method="tetrah
 
 
 def solve_on_mesh(model, mesh=None, *, kspacing_per_A=0.15, method="tetrahedron", width_eV=0.05,
-                  use_symmetry=True, symprec=1e-3, mp_order: int = 1, blochl: bool = True) -> BandEnergyResult:
+                  use_symmetry=True, symprec=1e-3, mp_order: int = 1, blochl: bool = True,
+                  rotations=None) -> BandEnergyResult:
     """Band energy of a tight-binding model in one call: mesh → irreducible wedge → eigenvalues → integration.
 
-    ``mesh`` defaults to ``kspace.mesh_from_spacing(model.crystal, kspacing_per_A, model.periodic)``; a given
+    ``mesh`` defaults to ``kmesh.mesh_from_spacing(model.crystal, kspacing_per_A, model.periodic)``; a given
     mesh is forced to 1 along directions the model marks non-periodic. Symmetry reduction uses
-    ``symmetry.irreducible_mesh``; the tetrahedra are split along the crystal's shortest reciprocal diagonal.
+    ``kmesh.irreducible_mesh`` (with ``rotations`` of the model's crystal when already known); the tetrahedra are
+    split along the crystal's shortest reciprocal diagonal.
     """
     from screener.bz.kmesh import _check_mesh, irreducible_mesh, mesh_from_spacing
 
@@ -166,7 +168,8 @@ def solve_on_mesh(model, mesh=None, *, kspacing_per_A=0.15, method="tetrahedron"
         mesh = mesh_from_spacing(model.crystal, kspacing_per_A, periodic)
     else:
         mesh = tuple(m if p else 1 for m, p in zip(_check_mesh(mesh), periodic, strict=True))
-    kmesh = irreducible_mesh(model.crystal, mesh, symprec=symprec, use_symmetry=use_symmetry)
+    kmesh = irreducible_mesh(model.crystal, mesh, symprec=symprec, use_symmetry=use_symmetry,
+                             rotations=rotations)
     eigs = np.asarray(model.eigenvalues(kmesh.kfrac))
     return integrate(eigs, kmesh, model.n_electrons, method=method, width_eV=width_eV,
                      spin_degeneracy=model.spin_degeneracy, reciprocal_A=model.crystal.reciprocal_A,

@@ -76,13 +76,20 @@ class IrreducibleMesh:
 
 
 def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = SYMPREC_A,
-                     use_symmetry: bool = True) -> IrreducibleMesh:
-    """Irreducible wedge of a Monkhorst–Pack mesh with weights (spglib ``get_ir_reciprocal_mesh``)."""
+                     use_symmetry: bool = True, rotations=None) -> IrreducibleMesh:
+    """Irreducible wedge of a Monkhorst–Pack mesh with weights (spglib ``get_ir_reciprocal_mesh``).
+
+    ``rotations`` ((n, 3, 3) int, fractional, of ``crystal``) reuses a symmetry analysis already made: the mesh is
+    then reduced by those rotations (spglib ``get_stabilized_reciprocal_mesh``) without a new symmetry search.
+    """
     mesh = tuple(int(m) for m in mesh)
     shift = tuple(int(s) for s in shift)
     if len(mesh) != 3 or min(mesh) < 1:
         raise SymmetryError(f"k-mesh must be three positive integers, got {mesh}")
-    if use_symmetry:
+    if use_symmetry and rotations is not None:
+        rots = np.unique(np.asarray(rotations, dtype="intc").reshape(-1, 3, 3), axis=0)
+        full_map, grid = spglib.get_stabilized_reciprocal_mesh(mesh, rots, is_shift=shift, is_time_reversal=True)
+    elif use_symmetry:
         res = spglib.get_ir_reciprocal_mesh(mesh, _cell(crystal), is_shift=shift, is_time_reversal=True,
                                             symprec=symprec)
         if res is None:

@@ -8,10 +8,11 @@ import numpy as np
 
 from screener.errors import ParameterError, SymmetryError
 from screener.structure.crystal import Crystal
+from screener.structure.symmetry import CENTRING
 
 #
 # Special points and default paths follow W. Setyawan & S. Curtarolo, Comput. Mater. Sci. 49, 299 (2010)
-# (values written here from memory of the paper's tables; tests/test_kspace.py checks every one of them lies on
+# (values written here from memory of the paper's tables; tests/bz/test_routes.py checks every one of them lies on
 # the Brillouin-zone surface or at a zone centre, which catches a wrong formula). The paper gives each point as
 # fractions of the reciprocal vectors of *its* primitive cell. Fractions of k relative to a basis do not change
 # under any isometry applied to both, so they hold in any primitive basis with the same Gram matrix as the
@@ -20,17 +21,7 @@ from screener.structure.crystal import Crystal
 #
 # Labels: Γ is written "Γ" everywhere (plots and JSON alike); subscripts are plain digits ("B1", "Σ1").
 
-#: Centring matrices, rows = primitive vectors as combinations of conventional vectors (row convention).
-#: F, I and C match the primitive cells of Setyawan & Curtarolo (2010); R is the obverse hexagonal-to-
-#: rhombohedral choice that spglib also uses.
-_CENTRING = {
-    "P": np.eye(3),
-    "F": np.array([[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]]),
-    "I": np.array([[-0.5, 0.5, 0.5], [0.5, -0.5, 0.5], [0.5, 0.5, -0.5]]),
-    "C": np.array([[0.5, -0.5, 0], [0.5, 0.5, 0], [0, 0, 1]]),
-    "A": np.array([[1, 0, 0], [0, 0.5, -0.5], [0, 0.5, 0.5]]),
-    "R": np.array([[2, 1, 1], [-1, 1, 1], [-1, -2, 1]]) / 3.0,
-}
+_CENTRING = CENTRING
 
 
 @dataclass(frozen=True)

@@ -96,7 +96,7 @@ class _TetrahedronGrid:
         if len(kmesh.mapping) != n_full or len(kmesh.grid_address) != n_full:
             raise ParameterError(
                 f"the tetrahedron method needs the full {tuple(mesh)} grid ({n_full} points), but the k-mesh holds "
-                f"{len(kmesh.mapping)}; build it with screener.symmetry.irreducible_mesh"
+                f"{len(kmesh.mapping)}; build it with screener.bz.kmesh.irreducible_mesh"
             )
         if eigs_ir.shape[0] != len(kmesh.ir_index):
             raise ParameterError(

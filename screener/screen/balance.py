@@ -13,91 +13,12 @@ import numpy as np
 from scipy.optimize import minimize_scalar
 
 from screener.bz.kmesh import mesh_from_spacing
-from screener.errors import ParameterError
-from screener.screen.closure import (
-    ElasticModel,
-    bond_lengths_A,
-    exponent_for_bulk_modulus,
-    pair_repulsion_prefactor_eV,
-    unique_bond_mask,
-)
-from screener.screen.generators import (
-    DistortionFamily,
-    follow_bonds,
-    nearest_neighbour_bonds,
-)
+from screener.screen.closure import ElasticModel, bond_lengths_A, elastic_model_for
+from screener.screen.generators import DistortionFamily, follow_bonds
+from screener.screen.parent import Parent, ParentEnergetics, parent_energetics  # noqa: F401  (re-exported)
+from screener.screen.settings import ScreenSettings
 from screener.structure.crystal import Crystal
-from screener.structure.symmetry import SYMPREC_A, analyse
-
-
-@dataclass(frozen=True)
-class ScreenSettings:
-    """Numerical settings of a screen; every field has a sensible default."""
-
-    kspacing_per_A: float = 0.2
-    """Starting k-point spacing, Å⁻¹ (2π included)."""
-    convergence_meV_per_atom: float = 0.5
-    """ΔE at the optimum is converged when a finer mesh changes it by less than this, meV/atom."""
-    max_refinements: int = 6
-    """Mesh refinements tried before a candidate is flagged unconverged."""
-    max_kpoints: int = 150_000
-    """Largest full k-mesh (points) a refinement may use; beyond it the candidate is flagged unconverged."""
-    refine_factor: float = 0.7
-    """Each refinement multiplies the k-spacing by this factor."""
-    max_amplitude_fraction: float = 0.12
-    """Largest amplitude of the first scan, as a fraction of the parent's shortest bond."""
-    amplitude_limit_fraction: float = 0.25
-    """Hard limit of the scan when the energy keeps falling, as a fraction of the shortest bond."""
-    n_scan: int = 7
-    """Amplitudes in the coarse scan (λ = 0 excluded)."""
-    method: str = "tetrahedron"
-    """Brillouin-zone integration method (see screener.electrons)."""
-    width_eV: float = 0.05
-    """Smearing width for smearing methods, eV."""
-    pair_exponent: float = 4.0
-    """Exponent m of the pair repulsion A (d0/d)^m."""
-    bulk_modulus_GPa: float | None = None
-    """If given, m is chosen so the parent has this bulk modulus (overrides pair_exponent)."""
-    threshold_meV_per_atom: float = 1.0
-    """A converged gain beyond this is 'unstable'; smaller gains are 'marginal'."""
-    stable_tolerance_meV_per_atom: float = 0.01
-    """Gains smaller than this count as no gain ('stable')."""
-    symprec_A: float = SYMPREC_A
-    """Symmetry tolerance, Å."""
-
-    def __post_init__(self):
-        for name in ("kspacing_per_A", "convergence_meV_per_atom", "max_amplitude_fraction", "threshold_meV_per_atom"):
-            v = getattr(self, name)
-            if not (isinstance(v, (int, float)) and v > 0):
-                raise ParameterError(f"{name} must be a positive number, got {v!r}")
-        if not 0 < self.refine_factor < 1:
-            raise ParameterError(f"refine_factor must lie between 0 and 1, got {self.refine_factor!r}")
-        if int(self.n_scan) < 3:
-            raise ParameterError(f"n_scan must be at least 3, got {self.n_scan!r}")
-
-
-@dataclass(frozen=True)
-class ParentEnergetics:
-    """The parent's band energy, its derivatives under uniform scaling, and the fitted repulsion."""
-
-    fermi_level_eV: float
-    """Fermi level of the parent, eV."""
-    band_energy_eV_per_atom: float
-    """Band energy of the parent per atom, eV."""
-    band_slope_eV_per_atom: float
-    """dE_band/ds per atom under uniform scaling r → (1 + s) r, eV."""
-    band_curvature_eV_per_atom: float
-    """d²E_band/ds² per atom, eV."""
-    repulsion_eV: float
-    """Pair-repulsion prefactor A per repulsive bond, eV."""
-    pair_exponent: float
-    """Exponent m in use (fitted when a bulk modulus was given)."""
-    gap_eV: float
-    """Band gap of the parent at E_F, eV (0 for a metal)."""
-    kmesh: tuple[int, int, int]
-    """k-mesh used for the parent, in its own cell."""
-    valence_electrons_per_cell: float
-    """Valence electrons the parent's model places in its bands, per cell."""
+from screener.structure.symmetry import analyse
 
 
 @dataclass(frozen=True)
@@ -170,7 +91,7 @@ class _Evaluator:
     """Evaluates band and elastic energies of a family's members at fixed bonds and mesh."""
 
     def __init__(self, family: DistortionFamily, params, elastic_prefactor_eV: float, exponent: float,
-                 settings: ScreenSettings):
+                 settings: ScreenSettings, bonds=None, reference_rotations=None):
         from screener.tb.bonds import find_bonds
         from screener.tb.model import build_model
 
@@ -178,7 +99,10 @@ class _Evaluator:
         self.params = params
         self.settings = settings
         ref = family.reference
-        self.bonds = find_bonds(ref, params)
+        # the parent's bonds copied into the supercell when given (bonds follow atoms); else the bond rules
+        self.bonds = find_bonds(ref, params) if bonds is None else bonds
+        # symmetry of the undistorted reference, when already known from the parent (no new search at λ = 0)
+        self.reference_rotations = reference_rotations
         self.model0 = build_model(ref, params, bonds=self.bonds)
         self.elastic = elastic_model_for(ref, params, self.bonds, elastic_prefactor_eV, exponent)
         # the same closure with a harder repulsion m' = m + STIFFER_BY: A m is fixed by equilibrium, so A' = A m / m'
@@ -207,8 +131,9 @@ class _Evaluator:
         # k-points may only be folded by symmetries the distorted structure really has: a tolerance above the
         # displacement would lend it the parent's symmetry
         symprec = self.settings.symprec_A if amplitude_A == 0 else min(self.settings.symprec_A, 0.1 * amplitude_A)
+        rotations = self.reference_rotations if amplitude_A == 0 and strain == 0 else None
         res = solve_on_mesh(model, mesh, method=self.settings.method, width_eV=self.settings.width_eV,
-                            symprec=symprec)
+                            symprec=symprec, rotations=rotations)
         return res.band_energy_eV / self.n_atoms, self._elastic_per_atom(self.elastic, crystal, shift), res
 
     def energies(self, amplitude_A: float, mesh) -> tuple[float, float, object, float]:
@@ -225,63 +150,6 @@ class _Evaluator:
         minimize_scalar(total, bounds=(-MAX_STRAIN, MAX_STRAIN), method="bounded", options={"xatol": 1e-4})
         eps = min(found, key=lambda e: found[e][0] + found[e][1])  # best strain tried, whatever the solver returned
         return (*found[eps], float(eps))
-
-
-def _spring_per_bond(crystal: Crystal, params, i: np.ndarray, j: np.ndarray) -> np.ndarray:
-    springs = np.zeros(len(i))
-    for k, (a, b) in enumerate(zip(i, j, strict=True)):
-        bp = params.bond(crystal.species[a], crystal.species[b])
-        springs[k] = getattr(bp, "spring_eV_per_A2", None) or 0.0
-    return springs
-
-
-def elastic_model_for(crystal: Crystal, params, bonds, repulsion_eV: float, exponent: float) -> ElasticModel:
-    """ElasticModel over the model's bonds (each once): springs where the parameters give one, else repulsion."""
-    keep = unique_bond_mask(bonds.i, bonds.j, bonds.image)
-    i, j, image = bonds.i[keep], bonds.j[keep], bonds.image[keep]
-    d0 = bond_lengths_A(crystal.lattice_A, crystal.frac, i, j, image)
-    springs = _spring_per_bond(crystal, params, i, j)
-    rep = np.where(springs > 0, 0.0, repulsion_eV)
-    return ElasticModel(i, j, image, d0, rep, springs, float(exponent))
-
-
-def parent_energetics(parent: Crystal, params, settings: ScreenSettings, step: float = 0.004) -> ParentEnergetics:
-    """Band energy of the parent and the pair repulsion that holds it in equilibrium under uniform scaling."""
-    from screener.bz.integrate import solve_on_mesh
-    from screener.tb.bonds import find_bonds
-    from screener.tb.model import build_model
-
-    bonds = find_bonds(parent, params)
-    model = build_model(parent, params, bonds=bonds)
-    mesh = mesh_from_spacing(parent, settings.kspacing_per_A * settings.refine_factor, model.periodic)
-
-    def e_band(s):
-        scaled = parent.replace(lattice_A=parent.lattice_A * (1 + s))
-        m = build_model(scaled, params, bonds=bonds)
-        return solve_on_mesh(m, mesh, method=settings.method, width_eV=settings.width_eV,
-                             symprec=settings.symprec_A)
-
-    r0, rp, rm = e_band(0.0), e_band(step), e_band(-step)
-    n = parent.n_atoms
-    slope = (rp.band_energy_eV - rm.band_energy_eV) / (2 * step)
-    curv = (rp.band_energy_eV - 2 * r0.band_energy_eV + rm.band_energy_eV) / step**2
-    el = elastic_model_for(parent, params, bonds, 1.0, settings.pair_exponent)
-    n_rep = int(np.count_nonzero(el.repulsion_eV))
-    exponent = settings.pair_exponent
-    if settings.bulk_modulus_GPa is not None:
-        exponent = exponent_for_bulk_modulus(settings.bulk_modulus_GPa, parent.volume_A3, slope, curv)
-    a = pair_repulsion_prefactor_eV(slope, n_rep, exponent)
-    return ParentEnergetics(
-        fermi_level_eV=r0.fermi_level_eV,
-        band_energy_eV_per_atom=r0.band_energy_eV / n,
-        band_slope_eV_per_atom=slope / n,
-        band_curvature_eV_per_atom=curv / n,
-        repulsion_eV=a,
-        pair_exponent=float(exponent),
-        gap_eV=r0.gap_eV,
-        kmesh=tuple(mesh),
-        valence_electrons_per_cell=float(model.n_electrons),
-    )
 
 
 def family_mesh(family: DistortionFamily, kspacing_per_A: float, periodic) -> tuple[int, int, int]:
@@ -308,13 +176,19 @@ def _verdict(delta_meV: float, converged: bool, robust: bool, settings: ScreenSe
     return "marginal"
 
 
-def evaluate_family(family: DistortionFamily, params, parent: ParentEnergetics, settings: ScreenSettings,
-                    progress=None) -> CandidateResult:
-    """Scan the amplitude, minimise, check k-mesh convergence and describe the optimum."""
-    ev = _Evaluator(family, params, parent.repulsion_eV, parent.pair_exponent, settings)
+def evaluate_family(family: DistortionFamily, context: Parent, progress=None) -> CandidateResult:
+    """Scan the amplitude, minimise, check k-mesh convergence and describe the optimum.
+
+    ``context`` is the Parent the family was generated from: its parameters, settings, energetics and bond set
+    (copied into the family's supercell) are used, so nothing about the parent is derived again.
+    """
+    params, settings, parent = context.params, context.settings, context.energetics
     ref = family.reference
+    m = family.supercell_matrix
+    ev = _Evaluator(family, params, parent.repulsion_eV, parent.pair_exponent, settings,
+                    bonds=context.supercell_bonds(m, ref), reference_rotations=context.supercell_rotations(m))
     mesh = family_mesh(family, settings.kspacing_per_A, ev.model0.periodic)
-    nn = nearest_neighbour_bonds(ref)
+    nn = context.supercell_shells(m, ref)
     d_min = float(nn.distance_A.min())
     lam_max = settings.max_amplitude_fraction * d_min
     lams = np.linspace(0.0, lam_max, int(settings.n_scan) + 1)

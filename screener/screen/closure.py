@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from screener.errors import ParameterError
+from screener.structure.crystal import Crystal
 
 #: 1 GPa in eV/Å^3 (CODATA: 1 eV = 1.602176634e-19 J).
 GPA_IN_EV_PER_A3 = 1.0 / 160.21766208
@@ -99,3 +100,21 @@ def exponent_for_bulk_modulus(bulk_modulus_GPa: float, volume_A3: float, band_sl
             "no positive repulsion exponent reproduces it — give a larger value or use springs"
         )
     return float(m)
+
+
+def _spring_per_bond(crystal: Crystal, params, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    springs = np.zeros(len(i))
+    for k, (a, b) in enumerate(zip(i, j, strict=True)):
+        bp = params.bond(crystal.species[a], crystal.species[b])
+        springs[k] = getattr(bp, "spring_eV_per_A2", None) or 0.0
+    return springs
+
+
+def elastic_model_for(crystal: Crystal, params, bonds, repulsion_eV: float, exponent: float) -> ElasticModel:
+    """ElasticModel over the model's bonds (each once): springs where the parameters give one, else repulsion."""
+    keep = unique_bond_mask(bonds.i, bonds.j, bonds.image)
+    i, j, image = bonds.i[keep], bonds.j[keep], bonds.image[keep]
+    d0 = bond_lengths_A(crystal.lattice_A, crystal.frac, i, j, image)
+    springs = _spring_per_bond(crystal, params, i, j)
+    rep = np.where(springs > 0, 0.0, repulsion_eV)
+    return ElasticModel(i, j, image, d0, rep, springs, float(exponent))

@@ -19,13 +19,10 @@ import numpy as np
 
 from screener.errors import ParameterError
 from screener.structure.crystal import Crystal
-from screener.structure.neighbours import find_neighbours
-from screener.structure.symmetry import SYMPREC_A, analyse
+from screener.structure.symmetry import SYMPREC_A
 
 GENERATORS = ("dimerise", "rhombohedral-split", "modulate")
 
-#: Relative tolerance for "same shell" when finding the parent's nearest-neighbour bonds (common practice, no source).
-SHELL_TOLERANCE = 0.05
 
 
 @dataclass(frozen=True, eq=False)
@@ -169,32 +166,20 @@ def _build_family(parent: Crystal, generator: str, description: str, q_frac, pol
     )
 
 
-def nearest_neighbour_bonds(crystal: Crystal, tolerance: float = SHELL_TOLERANCE):
-    """The first neighbour shell of every atom: NeighbourList of pairs with d ≤ (1 + tolerance)·d_min(atom i)."""
-    d_guess = crystal._shortest_contact()[0]
-    nl = find_neighbours(crystal.lattice_A, crystal.frac, d_guess * (1 + tolerance) * 1.0001 + 1e-6)
-    dmin_i = np.full(crystal.n_atoms, np.inf)
-    np.minimum.at(dmin_i, nl.i, nl.distance_A)
-    keep = nl.distance_A <= dmin_i[nl.i] * (1 + tolerance)
-    return type(nl)(nl.i[keep], nl.j[keep], nl.image[keep], nl.vector_A[keep], nl.distance_A[keep])
+def bonded_directions(parent) -> np.ndarray:
+    """(3,) bool: True along lattice vectors that some nearest-neighbour bond of the parent crosses."""
+    return np.any(_parent(parent).shells.image != 0, axis=0)
 
 
-def bonded_directions(crystal: Crystal) -> np.ndarray:
-    """(3,) bool: True along lattice vectors that some nearest-neighbour bond crosses."""
-    return np.any(nearest_neighbour_bonds(crystal).image != 0, axis=0)
+def _parent(parent, symprec: float | None = None):
+    from screener.screen.parent import as_parent
+
+    return as_parent(parent, symprec)
 
 
 def follow_bonds(i: np.ndarray, j: np.ndarray, image: np.ndarray, shift: np.ndarray) -> np.ndarray:
     """Bond images after atoms were wrapped by integer ``shift`` (see DistortionFamily.at_with_shift)."""
     return image + shift[j] - shift[i]
-
-
-def _point_group_cart(crystal: Crystal, symprec: float) -> np.ndarray:
-    """Point-group rotations of ``crystal`` as Cartesian matrices acting on column vectors."""
-    rots = analyse(crystal, symprec).rotations
-    lat = crystal.lattice_A
-    # x_frac' = R x_frac with r = L^T x  ->  r' = L^T R L^-T r
-    return np.einsum("ij,njk,kl->nil", lat.T, rots, np.linalg.inv(lat.T))
 
 
 def _distinct_directions(vectors: np.ndarray, rot_cart: np.ndarray) -> list[np.ndarray]:
@@ -210,15 +195,17 @@ def _distinct_directions(vectors: np.ndarray, rot_cart: np.ndarray) -> list[np.n
 
 
 # ----------------------------------------------------------------------------------------------- generators
-def dimerise(parent: Crystal, symprec: float = SYMPREC_A) -> list[DistortionFamily]:
+def dimerise(parent, symprec: float = SYMPREC_A) -> list[DistortionFamily]:
     """One family per symmetry-distinct nearest-neighbour bond direction: a longitudinal zone-boundary mode.
 
     The cell doubles along the chain and sites move alternately along the bond, so consecutive bonds of that
     direction become short/long. q is the shortest half reciprocal-lattice vector h/2 with q·b ≡ 1/2 for every
     bond b of that direction (most nearly parallel to the chain).
     """
-    nl = nearest_neighbour_bonds(parent)
-    rot = _point_group_cart(parent, symprec)
+    ctx = _parent(parent, symprec)
+    parent = ctx.crystal
+    nl = ctx.shells
+    rot = ctx.point_group_cart
     bond_frac = parent.frac[nl.j] + nl.image - parent.frac[nl.i]
     rec = parent.reciprocal_A
     h_all = np.array([h for h in itertools.product((-1, 0, 1), repeat=3) if any(h)], dtype=float)
@@ -247,9 +234,9 @@ def dimerise(parent: Crystal, symprec: float = SYMPREC_A) -> list[DistortionFami
     return families
 
 
-def _cubic_axes(parent: Crystal):
+def _cubic_axes(ctx):
     """Three orthogonal unit vectors if every atom's first shell is six bonds along ±three orthogonal axes."""
-    nl = nearest_neighbour_bonds(parent)
+    parent, nl = ctx.crystal, ctx.shells
     counts = np.bincount(nl.i, minlength=parent.n_atoms)
     if not np.all(counts == 6):
         return None, nl
@@ -267,7 +254,7 @@ def _cubic_axes(parent: Crystal):
     return axes, nl
 
 
-def rhombohedral_split(parent: Crystal, symprec: float = SYMPREC_A, relax_cell: bool = False
+def rhombohedral_split(parent, symprec: float = SYMPREC_A, relax_cell: bool = False
                        ) -> list[DistortionFamily]:
     """For (pseudo-)simple-cubic bond networks: sites move alternately along a body diagonal.
 
@@ -276,7 +263,9 @@ def rhombohedral_split(parent: Crystal, symprec: float = SYMPREC_A, relax_cell: 
     axes, expressed in the parent's reciprocal basis. ``relax_cell`` lets the comparator relax the rhombohedral
     angle (a volume-conserving stretch along the same diagonal) together with the displacement.
     """
-    axes, nl = _cubic_axes(parent)
+    ctx = _parent(parent, symprec)
+    parent = ctx.crystal
+    axes, nl = _cubic_axes(ctx)
     if axes is None:
         return []
     d = float(np.mean(nl.distance_A))
@@ -296,11 +285,13 @@ def rhombohedral_split(parent: Crystal, symprec: float = SYMPREC_A, relax_cell: 
     return [fam] if fam is not None else []
 
 
-def modulate(parent: Crystal, q_frac, polarisation="longitudinal", phase: float = 0.0) -> DistortionFamily:
+def modulate(parent, q_frac, polarisation="longitudinal", phase: float = 0.0) -> DistortionFamily:
     """A commensurate displacement wave u_j = λ e cos(2π q·x_j + φ) with a chosen polarisation.
 
     ``polarisation``: 'longitudinal' (along q, the default) or a Cartesian vector (e.g. a bond direction).
+    ``parent`` is a Parent or a Crystal.
     """
+    parent = parent.crystal if hasattr(parent, "symmetry") else parent
     q = _rationalise(q_frac)
     if isinstance(polarisation, str):
         if polarisation != "longitudinal":
@@ -322,10 +313,11 @@ def modulate(parent: Crystal, q_frac, polarisation="longitudinal", phase: float 
     return fam
 
 
-def zone_boundary_points(parent: Crystal, symprec: float = SYMPREC_A) -> list[np.ndarray]:
+def zone_boundary_points(parent, symprec: float = SYMPREC_A) -> list[np.ndarray]:
     """Symmetry-distinct non-zero time-reversal-invariant points q ∈ {0, 1/2}³ of the parent's reciprocal cell."""
-    rots = analyse(parent, symprec).rotations
-    bonded = bonded_directions(parent)
+    ctx = _parent(parent, symprec)
+    rots = ctx.symmetry.rotations
+    bonded = bonded_directions(ctx)
     out: list[np.ndarray] = []
     for h in itertools.product((0, 0.5), repeat=3):
         q = np.array(h)
@@ -350,14 +342,16 @@ def _same_mode(a: DistortionFamily, b: DistortionFamily, rot_frac: np.ndarray, r
     return bool(np.any(q_match & e_match))
 
 
-def default_candidates(parent: Crystal, generators=None, extra_q=(), symprec: float = SYMPREC_A,
+def default_candidates(parent, generators=None, extra_q=(), symprec: float = SYMPREC_A,
                        relax_cell: bool = False) -> list[DistortionFamily]:
     """The default candidate set: every applicable dimerise and rhombohedral-split, plus longitudinal modulations
     at the zone-boundary points of the parent's cell; duplicates by symmetry are dropped (first name wins).
 
     ``generators`` restricts the set (names from GENERATORS); ``extra_q`` adds longitudinal modulations;
-    ``relax_cell`` relaxes the rhombohedral angle of the rhombohedral split.
+    ``relax_cell`` relaxes the rhombohedral angle of the rhombohedral split. ``parent`` is a Parent (see
+    screener.screen.parent) or a Crystal.
     """
+    parent = _parent(parent, symprec)
     gens = tuple(generators) if generators else GENERATORS
     bad = [g for g in gens if g not in GENERATORS]
     if bad:
@@ -376,8 +370,8 @@ def default_candidates(parent: Crystal, generators=None, extra_q=(), symprec: fl
         except ParameterError:
             if any(np.allclose(q, x) for x in extra_q):
                 raise
-    rot_frac = analyse(parent, symprec).rotations
-    rot_cart = _point_group_cart(parent, symprec)
+    rot_frac = parent.symmetry.rotations
+    rot_cart = parent.point_group_cart
     unique: list[DistortionFamily] = []
     for f in fams:
         if not any(_same_mode(u, f, rot_frac, rot_cart) for u in unique):

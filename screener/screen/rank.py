@@ -12,12 +12,11 @@ from screener.screen.balance import (
     ParentEnergetics,
     ScreenSettings,
     evaluate_family,
-    parent_energetics,
 )
 from screener.screen.generators import default_candidates
+from screener.screen.parent import build_parent
 from screener.structure.crystal import Crystal
 from screener.structure.elements import HAZARDOUS
-from screener.structure.symmetry import analyse
 
 CAUTION = (
     "A screen, not a substitute for DFT or experiment: tight binding with universal parameters is qualitative; "
@@ -160,18 +159,14 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     progress : show a progress bar on stderr when the work takes more than a second.
     relax_cell : relax the rhombohedral angle together with the rhombohedral split (slower).
     """
-    from screener.tb.params import default_parameters
-
-    settings = settings or ScreenSettings()
-    if params is None:
-        params = default_parameters(sorted(set(crystal.species)))
-    sym = analyse(crystal, settings.symprec_A)
-    families = default_candidates(crystal, generators, extra_q, settings.symprec_A, relax_cell=relax_cell)
+    context = build_parent(crystal, params, settings)
+    settings, params, sym = context.settings, context.params, context.symmetry
+    families = default_candidates(context, generators, extra_q, settings.symprec_A, relax_cell=relax_cell)
     bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
                disable=not progress, leave=False)
     try:
-        parent = parent_energetics(crystal, params, settings)
-        results = [evaluate_family(f, params, parent, settings, progress=bar) for f in families]
+        parent = context.energetics
+        results = [evaluate_family(f, context, progress=bar) for f in families]
     finally:
         bar.close()
     results.sort(key=lambda c: (c.delta_E_meV_per_atom, c.generator))

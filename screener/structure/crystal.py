@@ -187,7 +187,14 @@ class Crystal:
         return group_shells(nl.distance_A, tol_A, self.n_atoms)
 
     def _shortest_contact(self) -> tuple[float, int, int]:
-        """Shortest interatomic distance (Å) including periodic images, and the pair."""
+        """Shortest interatomic distance (Å) including periodic images, and the pair (found once per crystal)."""
+        found = self.__dict__.get("_contact")
+        if found is None:
+            found = self._search_shortest_contact()
+            object.__setattr__(self, "_contact", found)
+        return found
+
+    def _search_shortest_contact(self) -> tuple[float, int, int]:
         n = self.n_atoms
         # generous cutoff: the longest cell diagonal, capped; shells guarantee at least one contact
         trial = (self.volume_A3 / n) ** (1 / 3) * 1.5 + 1e-6
@@ -198,6 +205,38 @@ class Crystal:
                 return float(nl.distance_A[k]), int(nl.i[k]), int(nl.j[k])
             trial *= 2
         return float("inf"), 0, 0
+
+
+def supercell_pairs(parent: Crystal, matrix, supercell: Crystal, i, j, image) -> tuple[np.ndarray, ...]:
+    """Copies of the parent's pairs (i, j, image) in ``supercell = parent.supercell(matrix)``, each copy once.
+
+    Returns (i, j, image) in the supercell's atom indices (parent-atom-major order of `Crystal.supercell`), so a
+    pair list found once for the parent serves every commensurate supercell without a new neighbour search.
+    """
+    m = np.round(np.asarray(matrix)).astype(int)
+    det = round(abs(float(np.linalg.det(m))))
+    minv = np.linalg.inv(m)
+    trans = lattice_points_in_supercell(m)  # (det, 3), parent fractional, order of Crystal.supercell
+    i, j, image = np.asarray(i, dtype=int), np.asarray(j, dtype=int), np.asarray(image, dtype=int)
+    # which supercell copy of atom j the bond from copy t of atom i reaches: T_t + R modulo the supercell lattice,
+    # identified through integer keys det·(T @ M⁻¹ mod 1)
+    def key(points):
+        f = np.mod(np.rint(points @ minv * det).astype(np.int64), det)
+        return (f[..., 0] * det + f[..., 1]) * det + f[..., 2]
+
+    lookup = np.full(det**3, -1, dtype=np.int64)
+    lookup[key(trans)] = np.arange(det)
+    reach = trans[None, :, :] + image[:, None, :]  # (p, det, 3)
+    t_to = lookup[key(reach)]
+    if np.any(t_to < 0):
+        raise StructureError("internal: a replicated pair did not land on a supercell copy; is the matrix integer?")
+    t_from = np.broadcast_to(np.arange(det), t_to.shape)
+    si = (i[:, None] * det + t_from).reshape(-1)
+    sj = (j[:, None] * det + t_to).reshape(-1)
+    vec = ((parent.frac[j] + image - parent.frac[i]) @ minv)[:, None, :]
+    vec = np.broadcast_to(vec, (len(i), det, 3)).reshape(-1, 3)
+    simage = np.rint(supercell.frac[si] + vec - supercell.frac[sj]).astype(int)
+    return si, sj, simage
 
 
 def _is_numeric(x) -> bool:

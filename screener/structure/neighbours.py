@@ -22,6 +22,8 @@ class NeighbourList:
     """(p, 3) float, r_j + image·L − r_i, Å."""
     distance_A: np.ndarray
     """(p,) float, bond length, Å."""
+    cutoff_A: float | None = None
+    """Search radius, Å: every pair up to it is listed (None: unknown)."""
 
 
 @dataclass(frozen=True)
@@ -64,6 +66,7 @@ def find_neighbours(lattice_A, frac, cutoff_A: float, include_zero: bool = False
         image=image[keep][order],
         vector_A=vec[keep][order],
         distance_A=dist[keep][order],
+        cutoff_A=float(cutoff_A),
     )
 
 
@@ -75,3 +78,29 @@ def group_shells(distances_A: np.ndarray, tol_A: float, n_atoms: int) -> list[Ne
     breaks = np.flatnonzero(np.diff(d) > tol_A) + 1
     groups = np.split(d, breaks)
     return [NeighbourShell(float(g.mean()), len(g) / n_atoms) for g in groups]
+
+
+#: Relative tolerance for "same shell" when finding the nearest-neighbour bonds of a candidate generator's parent
+#: (common practice, no source).
+FIRST_SHELL_TOLERANCE = 0.05
+
+
+def nearest_neighbour_bonds(crystal, tolerance: float = FIRST_SHELL_TOLERANCE, neighbours: NeighbourList | None = None
+                            ) -> NeighbourList:
+    """The first neighbour shell of every atom: NeighbourList of pairs with d ≤ (1 + tolerance)·d_min(atom i).
+
+    ``neighbours``: a search of the same crystal already made (e.g. for its bonds); it is filtered instead of
+    searching again when it reaches far enough.
+    """
+    d_guess = crystal._shortest_contact()[0]
+    reach = d_guess * (1 + tolerance) * 1.0001 + 1e-6
+    if neighbours is not None and neighbours.cutoff_A is not None and neighbours.cutoff_A >= reach:
+        near = neighbours.distance_A <= reach + 1e-9
+        nl = NeighbourList(neighbours.i[near], neighbours.j[near], neighbours.image[near], neighbours.vector_A[near],
+                           neighbours.distance_A[near], reach)
+    else:
+        nl = find_neighbours(crystal.lattice_A, crystal.frac, reach)
+    dmin_i = np.full(crystal.n_atoms, np.inf)
+    np.minimum.at(dmin_i, nl.i, nl.distance_A)
+    keep = nl.distance_A <= dmin_i[nl.i] * (1 + tolerance)
+    return type(nl)(nl.i[keep], nl.j[keep], nl.image[keep], nl.vector_A[keep], nl.distance_A[keep])

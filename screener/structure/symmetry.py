@@ -52,13 +52,19 @@ class SymmetryInfo:
     """Number of atoms in the primitive cell."""
     symprec_A: float
     """Tolerance used, Å."""
+    transformation_matrix: np.ndarray = None
+    """(3, 3) float, spglib's P: conventional standard basis (a_s b_s c_s) = (a b c) P⁻¹ (columns)."""
+    origin_shift: np.ndarray = None
+    """(3,) float, spglib's p: standard fractional coordinates x_s = P x + p."""
+    mapping_to_primitive: np.ndarray = None
+    """(n,) int, index of the primitive-cell atom each input atom is a copy of."""
 
 
 def analyse(crystal: Crystal, symprec: float = SYMPREC_A) -> SymmetryInfo:
     """Space group, Wyckoff letters and operations of ``crystal``."""
     ds = dataset(crystal, symprec)
-    prim = spglib.find_primitive(_cell(crystal), symprec=symprec)
-    n_prim = len(prim[1]) if prim is not None else crystal.n_atoms
+    # spglib's primitive search is part of the dataset: no second search
+    n_prim = len(np.unique(ds.mapping_to_primitive))
     return SymmetryInfo(
         symbol=str(ds.international),
         number=int(ds.number),
@@ -68,7 +74,70 @@ def analyse(crystal: Crystal, symprec: float = SYMPREC_A) -> SymmetryInfo:
         translations=np.asarray(ds.translations, dtype=float),
         primitive_atoms=int(n_prim),
         symprec_A=float(symprec),
+        transformation_matrix=np.asarray(ds.transformation_matrix, dtype=float),
+        origin_shift=np.asarray(ds.origin_shift, dtype=float),
+        mapping_to_primitive=np.asarray(ds.mapping_to_primitive, dtype=int),
     )
+
+
+#: Centring matrices, rows = primitive vectors as combinations of conventional vectors (row convention).
+#: F, I and C match the primitive cells of Setyawan & Curtarolo (2010); R is the obverse hexagonal-to-
+#: rhombohedral choice that spglib also uses.
+CENTRING = {
+    "P": np.eye(3),
+    "F": np.array([[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]]),
+    "I": np.array([[-0.5, 0.5, 0.5], [0.5, -0.5, 0.5], [0.5, 0.5, -0.5]]),
+    "C": np.array([[0.5, -0.5, 0], [0.5, 0.5, 0], [0, 0, 1]]),
+    "A": np.array([[1, 0, 0], [0, 0.5, -0.5], [0, 0.5, 0.5]]),
+    "R": np.array([[2, 1, 1], [-1, 1, 1], [-1, -2, 1]]) / 3.0,
+}
+
+
+@dataclass(frozen=True, eq=False)
+class StandardPrimitive:
+    """A crystal's standardised primitive cell in the input's Cartesian frame, and the map back to the input."""
+
+    crystal: Crystal
+    """Primitive cell: standard basis and origin (International Tables), positions not idealised, atoms sorted by
+    element and position, lattice in the input's Cartesian frame."""
+    supercell_matrix: np.ndarray
+    """(3, 3) int M: input lattice = M @ primitive lattice (rows)."""
+    origin_shift_A: np.ndarray
+    """(3,) float, Cartesian shift added to input positions to reach the primitive cell's origin, Å."""
+
+    def to_input_frame(self, cart_A: np.ndarray) -> np.ndarray:
+        """Cartesian positions (Å) of the primitive setting expressed in the input's setting."""
+        return np.asarray(cart_A, dtype=float) - self.origin_shift_A
+
+
+def standard_primitive(crystal: Crystal, info: SymmetryInfo) -> StandardPrimitive:
+    """The standardised primitive cell of ``crystal`` from its symmetry analysis (no second spglib search).
+
+    Generating candidates on this cell makes them independent of how the input was written: origin, cell choice
+    (conventional, supercell, non-standard basis) and atom order all map onto the same cell.
+    """
+    P = info.transformation_matrix
+    conv = np.linalg.inv(P).T @ crystal.lattice_A
+    centring = CENTRING.get(info.symbol[0], np.eye(3))
+    prim = centring @ conv
+    x_std = crystal.frac @ P.T + info.origin_shift
+    x_prim = x_std @ np.linalg.inv(centring)
+    keep = np.unique(info.mapping_to_primitive, return_index=True)[1]
+    frac = np.mod(x_prim[keep], 1.0)
+    frac[np.isclose(frac, 1.0, atol=1e-9)] = 0.0
+    species = [crystal.species[k] for k in keep]
+    labels = [crystal.labels[k] for k in keep]
+    order = np.lexsort((np.round(frac[:, 2], 6), np.round(frac[:, 1], 6), np.round(frac[:, 0], 6), species))
+    prim_crystal = Crystal(prim, frac[order], [species[k] for k in order], [labels[k] for k in order],
+                           min_distance_A=crystal.min_distance_A)
+    m = crystal.lattice_A @ np.linalg.inv(prim)
+    if np.max(np.abs(m - np.round(m))) > 1e-4:
+        raise SymmetryError(
+            f"internal: the input cell of {crystal.formula} is not an integer multiple of its primitive cell "
+            f"(M = {np.round(m, 4).tolist()}); try a different --symprec"
+        )
+    shift = info.origin_shift @ np.linalg.inv(P).T @ crystal.lattice_A
+    return StandardPrimitive(prim_crystal, np.round(m).astype(int), shift)
 
 
 def _from_spglib_cell(cell, like: Crystal) -> Crystal:

@@ -16,7 +16,7 @@ import numpy as np
 
 from screener.errors import StructureError
 from screener.structure.crystal import Crystal
-from screener.structure.neighbours import find_neighbours
+from screener.structure.neighbours import NeighbourList, find_neighbours
 from screener.tb.params import ParameterSet, default_parameters
 
 #: Relative tolerance grouping neighbour distances into one shell (common practice, no source).
@@ -76,14 +76,21 @@ def _bond_rule(params: ParameterSet, a: str, b: str) -> tuple[float | None, int]
     return bp.cutoff_A, bp.shells
 
 
-def find_bonds(crystal: Crystal, params: ParameterSet | None = None, *,
-               shell_tolerance: float = SHELL_TOLERANCE) -> BondList:
-    """Pairs that interact under the parameter rules (see module docstring), each listed once."""
+def _rules(crystal: Crystal, params: ParameterSet):
+    elements = sorted(set(crystal.species))
+    return elements, {(a, b): _bond_rule(params, a, b) for a in elements for b in elements}
+
+
+def bond_search(crystal: Crystal, params: ParameterSet | None = None, *,
+                shell_tolerance: float = SHELL_TOLERANCE) -> NeighbourList:
+    """The one neighbour search the bond rules need: every pair out to a radius that closes the shells asked for.
+
+    Its result can be handed to `find_bonds` (and to the nearest-neighbour shell of the candidate generators), so
+    a parent's neighbours are searched once.
+    """
     if params is None:
         params = default_parameters(set(crystal.species))
-    species = crystal.species
-    elements = sorted(set(species))
-    rules = {(a, b): _bond_rule(params, a, b) for a in elements for b in elements}
+    _, rules = _rules(crystal, params)
     cutoffs = [c for c, _ in rules.values() if c is not None]
     shells_needed = max((s for c, s in rules.values() if c is None), default=0)
     dmin = crystal._shortest_contact()[0]
@@ -103,8 +110,22 @@ def find_bonds(crystal: Crystal, params: ParameterSet | None = None, *,
                 break
             bound = nearest * (1 + shell_tolerance)
         if closed or radius >= MAX_SEARCH_A:
-            break
+            return nl
         radius = min(radius * 1.6, MAX_SEARCH_A)
+
+
+def find_bonds(crystal: Crystal, params: ParameterSet | None = None, *,
+               shell_tolerance: float = SHELL_TOLERANCE, neighbours: NeighbourList | None = None) -> BondList:
+    """Pairs that interact under the parameter rules (see module docstring), each listed once.
+
+    ``neighbours`` is the result of `bond_search` for the same crystal and parameters (searched here if None).
+    """
+    if params is None:
+        params = default_parameters(set(crystal.species))
+    nl = bond_search(crystal, params, shell_tolerance=shell_tolerance) if neighbours is None else neighbours
+    species = crystal.species
+    elements, rules = _rules(crystal, params)
+    n = crystal.n_atoms
 
     si = np.array([elements.index(s) for s in species])
     keep = np.zeros(len(nl.i), dtype=bool)

@@ -4,8 +4,9 @@ import numpy as np
 import pytest
 
 from screener.bz.integrate import solve_on_mesh
-from screener.screen.balance import ScreenSettings, elastic_model_for, parent_energetics
-from screener.screen.closure import GPA_IN_EV_PER_A3
+from screener.screen.closure import GPA_IN_EV_PER_A3, elastic_model_for
+from screener.screen.parent import build_parent
+from screener.screen.settings import ScreenSettings
 from screener.structure.crystal import Crystal
 from screener.tb.bonds import find_bonds
 from screener.tb.model import build_model
@@ -35,7 +36,7 @@ def test_bulk_modulus_calibration_gives_that_curvature():
     crystal = Crystal(np.eye(3) * 2.78, [[0, 0, 0]], ["As"])
     params = default_parameters(["As"])
     settings = ScreenSettings(bulk_modulus_GPa=40.0)
-    parent = parent_energetics(crystal, params, settings)
+    parent = build_parent(crystal, params, settings).energetics
     bonds = find_bonds(crystal, params)
     el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent)
     mesh = parent.kmesh

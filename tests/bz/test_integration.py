@@ -1,7 +1,7 @@
 """Occupations, Fermi level, band energy and DOS checked against analytic tight-binding results.
 
 The models here are analytic nearest-neighbour s bands (one orbital per site) with the interface of
-``screener.model.TightBindingModel`` that ``solve_on_mesh`` uses.
+``screener.tb.model.TightBindingModel`` that ``solve_on_mesh`` uses.
 """
 
 from __future__ import annotations

@@ -4,14 +4,16 @@ import numpy as np
 import pytest
 
 from screener.errors import ParameterError
-from screener.screen.balance import ScreenSettings, evaluate_family, parent_energetics
+from screener.screen.balance import evaluate_family
 from screener.screen.closure import (
     ElasticModel,
     exponent_for_bulk_modulus,
     pair_repulsion_prefactor_eV,
 )
 from screener.screen.generators import dimerise, rhombohedral_split
+from screener.screen.parent import build_parent
 from screener.screen.rank import rank
+from screener.screen.settings import ScreenSettings
 from screener.structure.crystal import Crystal
 from screener.tb.param_file import load_parameters
 from screener.tb.params import default_parameters
@@ -47,10 +49,9 @@ def ssh_params(tmp_path, electrons=1):
 def screen_chain(tmp_path, electrons):
     chain = ssh_chain()
     params = ssh_params(tmp_path, electrons)
-    settings = ScreenSettings()
-    parent = parent_energetics(chain, params, settings)
-    (fam,) = dimerise(chain)
-    return evaluate_family(fam, params, parent, settings)
+    context = build_parent(chain, params, ScreenSettings())
+    (fam,) = dimerise(context)
+    return evaluate_family(fam, context)
 
 
 def test_ssh_chain_dimerisation_matches_published_values(tmp_path):
@@ -130,12 +131,11 @@ def test_pair_repulsion_holds_parent_in_equilibrium():
 
     crystal = simple_cubic(A_SC_AS)
     params = default_parameters(["As"])
-    settings = ScreenSettings()
-    parent = parent_energetics(crystal, params, settings)
+    parent = build_parent(crystal, params, ScreenSettings()).energetics
     assert parent.repulsion_eV > 0
     bonds = find_bonds(crystal, params)
     mesh = parent.kmesh
-    from screener.screen.balance import elastic_model_for
+    from screener.screen.closure import elastic_model_for
 
     el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent)
 
@@ -195,17 +195,17 @@ def test_relaxed_rhombohedral_angle_lowers_energy_and_elongates_the_diagonal():
     crystal = simple_cubic(A_SC_AS)
     params = default_parameters(["As"])
     settings = ScreenSettings(kspacing_per_A=0.3, max_refinements=1)
-    parent = parent_energetics(crystal, params, settings)
-    (fixed,) = rhombohedral_split(crystal)
-    (relaxed,) = rhombohedral_split(crystal, relax_cell=True)
+    context = build_parent(crystal, params, settings)
+    (fixed,) = rhombohedral_split(context)
+    (relaxed,) = rhombohedral_split(context, relax_cell=True)
     # the strained cell keeps its volume and the R-3m symmetry (International Tables A, No. 166)
     c = relaxed.at(0.1, strain=0.1)
     assert c.volume_A3 == pytest.approx(relaxed.reference.volume_A3, rel=1e-12)
     from screener.structure.symmetry import analyse
 
     assert analyse(c).number == 166
-    r_fixed = evaluate_family(fixed, params, parent, settings)
-    r_relaxed = evaluate_family(relaxed, params, parent, settings)
+    r_fixed = evaluate_family(fixed, context)
+    r_relaxed = evaluate_family(relaxed, context)
     # relaxing one more degree of freedom can only lower the optimum (variational, common practice, no source)
     assert r_relaxed.delta_E_meV_per_atom <= r_fixed.delta_E_meV_per_atom + 0.5
     # A7 arsenic's rhombohedral angle (54.1°) is below the 60° of the doubled simple-cubic cell: the body

@@ -10,10 +10,10 @@ from screener.screen.generators import (
     dimerise,
     follow_bonds,
     modulate,
-    nearest_neighbour_bonds,
     rhombohedral_split,
 )
 from screener.structure.crystal import Crystal
+from screener.structure.neighbours import nearest_neighbour_bonds
 from screener.structure.symmetry import analyse
 
 

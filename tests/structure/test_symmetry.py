@@ -15,7 +15,7 @@ from screener.errors import SymmetryError
 from screener.structure.symmetry import analyse, primitive_cell, standard_cell
 
 DATA = Path(__file__).parents[1] / "data"
-# spglib >= 2.5 warns about its legacy error handling on every call; screener.symmetry checks return values
+# spglib >= 2.5 warns about its legacy error handling on every call; screener.structure.symmetry checks return values
 pytestmark = pytest.mark.filterwarnings("ignore:Set OLD_ERROR_HANDLING:DeprecationWarning")
 
 # (file, options, ITA number, Hermann–Mauguin symbol, atoms in the primitive cell)

@@ -9,7 +9,7 @@ from pathlib import Path
 from screener.errors import FormatError, ScreenerError
 from screener.structure.crystal import Crystal
 
-#: format name -> (module under screener.io, file name endings that select it)
+#: format name -> (module under screener.structure.formats, file name endings that select it)
 FORMATS: dict[str, tuple[str, tuple[str, ...]]] = {
     "cif": ("cif", (".cif", ".mmcif")),
     "poscar": ("poscar", (".vasp", ".poscar", "poscar", "contcar")),

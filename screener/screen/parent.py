@@ -1,0 +1,187 @@
+"""The parent context: everything about the input structure that the screen needs, worked out once.
+
+A `Parent` is built once per input (`build_parent`) and handed to the candidate generators, the comparator and
+the ranking, so none of them analyses the parent's symmetry or searches its neighbours again. It holds the
+crystal as given, its symmetry analysis, its standardised primitive cell with the map back to the input setting,
+the one neighbour search, the first neighbour shell, the model's bond set, the parameters and (built on first use)
+the tight-binding model and the parent's energetics.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+
+from screener.bz.kmesh import mesh_from_spacing
+from screener.screen.closure import (
+    elastic_model_for,
+    exponent_for_bulk_modulus,
+    pair_repulsion_prefactor_eV,
+)
+from screener.screen.settings import ScreenSettings
+from screener.structure.crystal import Crystal, supercell_pairs
+from screener.structure.neighbours import NeighbourList, nearest_neighbour_bonds
+from screener.structure.symmetry import StandardPrimitive, SymmetryInfo, analyse, standard_primitive
+from screener.tb.bonds import BondList, _canonical, bond_search, find_bonds
+from screener.tb.params import ParameterSet, default_parameters
+
+
+@dataclass(frozen=True)
+class ParentEnergetics:
+    """The parent's band energy, its derivatives under uniform scaling, and the fitted repulsion."""
+
+    fermi_level_eV: float
+    """Fermi level of the parent, eV."""
+    band_energy_eV_per_atom: float
+    """Band energy of the parent per atom, eV."""
+    band_slope_eV_per_atom: float
+    """dE_band/ds per atom under uniform scaling r → (1 + s) r, eV."""
+    band_curvature_eV_per_atom: float
+    """d²E_band/ds² per atom, eV."""
+    repulsion_eV: float
+    """Pair-repulsion prefactor A per repulsive bond, eV."""
+    pair_exponent: float
+    """Exponent m in use (fitted when a bulk modulus was given)."""
+    gap_eV: float
+    """Band gap of the parent at E_F, eV (0 for a metal)."""
+    kmesh: tuple[int, int, int]
+    """k-mesh used for the parent, in its own cell."""
+    valence_electrons_per_cell: float
+    """Valence electrons the parent's model places in its bands, per cell."""
+
+
+@dataclass(frozen=True, eq=False)
+class Parent:
+    """One input structure, analysed once. Build with `build_parent`."""
+
+    crystal: Crystal
+    """The structure as given."""
+    params: ParameterSet
+    """Tight-binding parameters for its elements."""
+    settings: ScreenSettings
+    """Numerical settings of the screen."""
+    symmetry: SymmetryInfo
+    """Space group, operations and the spglib map to the primitive cell (the one symmetry analysis)."""
+    primitive: StandardPrimitive
+    """Standardised primitive cell and the map back to the input setting."""
+    neighbours: NeighbourList
+    """The one neighbour search (far enough for the bond rules and the first shell)."""
+    shells: NeighbourList
+    """First neighbour shell of every atom, both directions (see `nearest_neighbour_bonds`)."""
+    bonds: BondList
+    """Pairs the model couples, each once."""
+
+    @cached_property
+    def model(self):
+        """The parent's TightBindingModel (built on first use)."""
+        from screener.tb.model import build_model
+
+        return build_model(self.crystal, self.params, bonds=self.bonds)
+
+    @cached_property
+    def energetics(self) -> ParentEnergetics:
+        """Band energy, scaling derivatives and fitted repulsion (computed on first use)."""
+        return parent_energetics(self)
+
+    @cached_property
+    def point_group_cart(self) -> np.ndarray:
+        """(n_ops, 3, 3) point-group rotations as Cartesian matrices acting on column vectors."""
+        lat = self.crystal.lattice_A
+        # x_frac' = R x_frac with r = L^T x  ->  r' = L^T R L^-T r
+        return np.einsum("ij,njk,kl->nil", lat.T, self.symmetry.rotations, np.linalg.inv(lat.T))
+
+    def supercell_rotations(self, matrix) -> np.ndarray:
+        """Point-group rotations of the undistorted parent written in the supercell ``matrix @ lattice``.
+
+        The parent's operations act on fractional columns, x' = R x; in the supercell basis they read
+        M⁻ᵀ R Mᵀ, and those that stay integer map the supercell's lattice, and so its k-mesh, onto itself.
+        """
+        m = np.asarray(matrix, dtype=float)
+        rots = np.einsum("ij,njk,kl->nil", np.linalg.inv(m.T), self.symmetry.rotations, m.T)
+        keep = np.all(np.abs(rots - np.round(rots)) < 1e-8, axis=(1, 2))
+        return np.round(rots[keep]).astype(int)
+
+    def supercell_bonds(self, matrix, supercell: Crystal) -> BondList:
+        """The parent's bond set copied into ``supercell = crystal.supercell(matrix)`` (no new search)."""
+        b = self.bonds
+        i, j, image = supercell_pairs(self.crystal, matrix, supercell, b.i, b.j, b.image)
+        flip = ~_canonical(i, j, image)
+        i, j, image = np.where(flip, j, i), np.where(flip, i, j), np.where(flip[:, None], -image, image)
+        return BondList(i, j, image, supercell.frac[j] + image - supercell.frac[i])
+
+    def supercell_shells(self, matrix, supercell: Crystal) -> NeighbourList:
+        """The parent's first neighbour shell copied into ``supercell`` (both directions, no new search)."""
+        s = self.shells
+        i, j, image = supercell_pairs(self.crystal, matrix, supercell, s.i, s.j, s.image)
+        vec = (supercell.frac[j] + image - supercell.frac[i]) @ supercell.lattice_A
+        order = np.lexsort((np.linalg.norm(vec, axis=1), i))
+        return NeighbourList(i[order], j[order], image[order], vec[order], np.linalg.norm(vec, axis=1)[order])
+
+
+def build_parent(crystal: Crystal, params: ParameterSet | None = None,
+                 settings: ScreenSettings | None = None) -> Parent:
+    """Analyse ``crystal`` once: symmetry, standardised primitive cell, neighbours, first shell and bonds."""
+    settings = settings or ScreenSettings()
+    if params is None:
+        params = default_parameters(sorted(set(crystal.species)))
+    symmetry = analyse(crystal, settings.symprec_A)
+    neighbours = bond_search(crystal, params)
+    return Parent(
+        crystal=crystal,
+        params=params,
+        settings=settings,
+        symmetry=symmetry,
+        primitive=standard_primitive(crystal, symmetry),
+        neighbours=neighbours,
+        shells=nearest_neighbour_bonds(crystal, neighbours=neighbours),
+        bonds=find_bonds(crystal, params, neighbours=neighbours),
+    )
+
+
+def as_parent(parent: Parent | Crystal, symprec: float | None = None) -> Parent:
+    """``parent`` itself, or a Parent built from a bare Crystal with default parameters and settings."""
+    if isinstance(parent, Parent):
+        return parent
+    settings = ScreenSettings() if symprec is None else ScreenSettings(symprec_A=symprec)
+    return build_parent(parent, settings=settings)
+
+
+def parent_energetics(parent: Parent, step: float = 0.004) -> ParentEnergetics:
+    """Band energy of the parent and the pair repulsion that holds it in equilibrium under uniform scaling."""
+    from screener.bz.integrate import solve_on_mesh
+    from screener.tb.model import build_model
+
+    crystal, params, settings, bonds = parent.crystal, parent.params, parent.settings, parent.bonds
+    model = parent.model
+    mesh = mesh_from_spacing(crystal, settings.kspacing_per_A * settings.refine_factor, model.periodic)
+
+    def e_band(s):
+        # uniform scaling keeps every symmetry: the parent's rotations reduce the mesh
+        m = model if s == 0 else build_model(crystal.replace(lattice_A=crystal.lattice_A * (1 + s)), params,
+                                             bonds=bonds)
+        return solve_on_mesh(m, mesh, method=settings.method, width_eV=settings.width_eV,
+                             symprec=settings.symprec_A, rotations=parent.symmetry.rotations)
+
+    r0, rp, rm = e_band(0.0), e_band(step), e_band(-step)
+    n = crystal.n_atoms
+    slope = (rp.band_energy_eV - rm.band_energy_eV) / (2 * step)
+    curv = (rp.band_energy_eV - 2 * r0.band_energy_eV + rm.band_energy_eV) / step**2
+    el = elastic_model_for(crystal, params, bonds, 1.0, settings.pair_exponent)
+    n_rep = int(np.count_nonzero(el.repulsion_eV))
+    exponent = settings.pair_exponent
+    if settings.bulk_modulus_GPa is not None:
+        exponent = exponent_for_bulk_modulus(settings.bulk_modulus_GPa, crystal.volume_A3, slope, curv)
+    a = pair_repulsion_prefactor_eV(slope, n_rep, exponent)
+    return ParentEnergetics(
+        fermi_level_eV=r0.fermi_level_eV,
+        band_energy_eV_per_atom=r0.band_energy_eV / n,
+        band_slope_eV_per_atom=slope / n,
+        band_curvature_eV_per_atom=curv / n,
+        repulsion_eV=a,
+        pair_exponent=float(exponent),
+        gap_eV=r0.gap_eV,
+        kmesh=tuple(mesh),
+        valence_electrons_per_cell=float(model.n_electrons),
+    )

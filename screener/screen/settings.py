@@ -1,0 +1,54 @@
+"""Numerical settings of a screen (one frozen object, validated at construction)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from screener.errors import ParameterError
+from screener.structure.symmetry import SYMPREC_A
+
+
+@dataclass(frozen=True)
+class ScreenSettings:
+    """Numerical settings of a screen; every field has a sensible default."""
+
+    kspacing_per_A: float = 0.2
+    """Starting k-point spacing, Å⁻¹ (2π included)."""
+    convergence_meV_per_atom: float = 0.5
+    """ΔE at the optimum is converged when a finer mesh changes it by less than this, meV/atom."""
+    max_refinements: int = 6
+    """Mesh refinements tried before a candidate is flagged unconverged."""
+    max_kpoints: int = 150_000
+    """Largest full k-mesh (points) a refinement may use; beyond it the candidate is flagged unconverged."""
+    refine_factor: float = 0.7
+    """Each refinement multiplies the k-spacing by this factor."""
+    max_amplitude_fraction: float = 0.12
+    """Largest amplitude of the first scan, as a fraction of the parent's shortest bond."""
+    amplitude_limit_fraction: float = 0.25
+    """Hard limit of the scan when the energy keeps falling, as a fraction of the shortest bond."""
+    n_scan: int = 7
+    """Amplitudes in the coarse scan (λ = 0 excluded)."""
+    method: str = "tetrahedron"
+    """Brillouin-zone integration method (see screener.bz.integrate)."""
+    width_eV: float = 0.05
+    """Smearing width for smearing methods, eV."""
+    pair_exponent: float = 4.0
+    """Exponent m of the pair repulsion A (d0/d)^m."""
+    bulk_modulus_GPa: float | None = None
+    """If given, m is chosen so the parent has this bulk modulus (overrides pair_exponent)."""
+    threshold_meV_per_atom: float = 1.0
+    """A converged gain beyond this is 'unstable'; smaller gains are 'marginal'."""
+    stable_tolerance_meV_per_atom: float = 0.01
+    """Gains smaller than this count as no gain ('stable')."""
+    symprec_A: float = SYMPREC_A
+    """Symmetry tolerance, Å."""
+
+    def __post_init__(self):
+        for name in ("kspacing_per_A", "convergence_meV_per_atom", "max_amplitude_fraction", "threshold_meV_per_atom"):
+            v = getattr(self, name)
+            if not (isinstance(v, (int, float)) and v > 0):
+                raise ParameterError(f"{name} must be a positive number, got {v!r}")
+        if not 0 < self.refine_factor < 1:
+            raise ParameterError(f"refine_factor must lie between 0 and 1, got {self.refine_factor!r}")
+        if int(self.n_scan) < 3:
+            raise ParameterError(f"n_scan must be at least 3, got {self.n_scan!r}")
