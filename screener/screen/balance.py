@@ -67,8 +67,15 @@ class CandidateResult:
     """Band part along the scan, meV/atom."""
     scan_delta_E_elastic_meV_per_atom: tuple[float, ...]
     """Elastic part along the scan, meV/atom."""
-    survives_stiffer_repulsion: bool
-    """Whether the scan still gains more than the threshold with the repulsion exponent raised by one."""
+    delta_E_range_meV_per_atom: tuple[float, float]
+    """(lowest, highest) ΔE at the optimum over the members of the closure's uncertainty range, meV/atom (0 for a
+    member that gains nothing)."""
+    distorting_fraction: float
+    """Fraction of the closure's members that gain more than the threshold."""
+    member_delta_E_meV_per_atom: tuple[float, ...]
+    """ΔE at each member's own optimum, meV/atom, in the order of ParentEnergetics.ensemble."""
+    kmesh_error_meV_per_atom: float
+    """Change of ΔE on the last mesh refinement, meV/atom (0 when no refinement was needed; NaN if none was made)."""
     cell_strain: float
     """Relaxed volume-conserving uniaxial cell strain ε at the optimum (0 when the cell is fixed)."""
     structure: Crystal = field(repr=False)
@@ -78,11 +85,6 @@ class CandidateResult:
 
 
 # --------------------------------------------------------------------------------------------- machinery
-#: Exponent increase of the robustness check. With Harrison's d⁻² hoppings the second-order band energy of a
-#: bond scales as d⁻⁴, so a d⁻⁴ repulsion fitted to equilibrium cancels its curvature: m = 4 is marginal for
-#: insulators and a verdict that only holds at m = 4 deserves doubt (Harrison, Electronic Structure and the
-#: Properties of Solids (1980), overlap repulsion; the cancellation is our own algebra).
-STIFFER_BY = 1.0
 #: Largest uniaxial cell strain tried when a family relaxes its cell (common practice, no source).
 MAX_STRAIN = 0.25
 
@@ -91,7 +93,7 @@ class _Evaluator:
     """Evaluates band and elastic energies of a family's members at fixed bonds and mesh."""
 
     def __init__(self, family: DistortionFamily, params, elastic_prefactor_eV: float, exponent: float,
-                 settings: ScreenSettings, bonds=None, reference_rotations=None):
+                 settings: ScreenSettings, bonds=None, reference_rotations=None, ensemble=()):
         from screener.tb.bonds import find_bonds
         from screener.tb.model import build_model
 
@@ -105,10 +107,8 @@ class _Evaluator:
         self.reference_rotations = reference_rotations
         self.model0 = build_model(ref, params, bonds=self.bonds)
         self.elastic = elastic_model_for(ref, params, self.bonds, elastic_prefactor_eV, exponent)
-        # the same closure with a harder repulsion m' = m + STIFFER_BY: A m is fixed by equilibrium, so A' = A m / m'
-        stiff = exponent + STIFFER_BY
-        self.elastic_stiff = elastic_model_for(ref, params, self.bonds, elastic_prefactor_eV * exponent / stiff,
-                                               stiff)
+        # the closure's uncertainty range: one elastic model per member (geometry only, no diagonalisation)
+        self.members = [elastic_model_for(ref, params, self.bonds, a, m) for _, a, m in ensemble] or [self.elastic]
         self.n_atoms = ref.n_atoms
         self._build = build_model
 
@@ -116,9 +116,10 @@ class _Evaluator:
         """Elastic energy per atom of ``crystal`` (a family member whose atoms were wrapped by ``shift``)."""
         return el.energy_eV(crystal.lattice_A, crystal.frac, follow_bonds(el.i, el.j, el.image, shift)) / self.n_atoms
 
-    def stiff_elastic(self, amplitude_A: float, strain: float = 0.0) -> float:
-        """Elastic energy per atom with the harder repulsion (geometry only, no diagonalisation)."""
-        return self._elastic_per_atom(self.elastic_stiff, *self.family.at_with_shift(amplitude_A, strain))
+    def member_elastic(self, amplitude_A: float, strain: float = 0.0) -> np.ndarray:
+        """Elastic energy per atom of every closure member at amplitude λ and strain ε (no diagonalisation)."""
+        crystal, shift = self.family.at_with_shift(amplitude_A, strain)
+        return np.array([self._elastic_per_atom(el, crystal, shift) for el in self.members])
 
     def energies_at(self, amplitude_A: float, strain: float, mesh) -> tuple[float, float, object]:
         """(E_band per atom, E_elastic per atom, BandEnergyResult) at amplitude λ and cell strain ε."""
@@ -166,16 +167,6 @@ def family_mesh(family: DistortionFamily, kspacing_per_A: float, periodic) -> tu
                  for n, p in zip(mesh, periodic, strict=True))
 
 
-def _verdict(delta_meV: float, converged: bool, robust: bool, settings: ScreenSettings) -> str:
-    """'stable' (no gain), 'unstable' (converged gain beyond the threshold that also survives a stiffer
-    repulsion), else 'marginal'."""
-    if delta_meV > -settings.stable_tolerance_meV_per_atom:
-        return "stable"
-    if converged and robust and delta_meV < -settings.threshold_meV_per_atom:
-        return "unstable"
-    return "marginal"
-
-
 def evaluate_family(family: DistortionFamily, context: Parent, progress=None) -> CandidateResult:
     """Scan the amplitude, minimise, check k-mesh convergence and describe the optimum.
 
@@ -186,7 +177,8 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     ref = family.reference
     m = family.supercell_matrix
     ev = _Evaluator(family, params, parent.repulsion_eV, parent.pair_exponent, settings,
-                    bonds=context.supercell_bonds(m, ref), reference_rotations=context.supercell_rotations(m))
+                    bonds=context.supercell_bonds(m, ref), reference_rotations=context.supercell_rotations(m),
+                    ensemble=parent.ensemble)
     mesh = family_mesh(family, settings.kspacing_per_A, ev.model0.periodic)
     nn = context.supercell_shells(m, ref)
     d_min = float(nn.distance_A.min())
@@ -217,10 +209,17 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         lams = np.append(lams, lams[-1] + step * np.arange(1, int(settings.n_scan) // 2 + 2))
         lams = lams[lams <= settings.amplitude_limit_fraction * d_min + 1e-12]
     lam_max = float(lams[-1])
-    stiff = np.array([ev.stiff_elastic(x, e_at(x)[3]) for x in lams])
-    stiff_total = band + (stiff - stiff[0]) * 1e3
-    survives_stiffer = bool(np.min(stiff_total) < -settings.threshold_meV_per_atom)
+    thr, tol = settings.threshold_meV_per_atom, settings.stable_tolerance_meV_per_atom
     note = []
+
+    def member_totals(m, upto=np.inf):
+        """(n_members, n_amplitudes) ΔE of every closure member along the scan amplitudes on mesh m, meV/atom."""
+        xs = lams[lams <= upto + 1e-12]
+        b = np.array([e_at(x, m)[0] for x in xs])
+        el = np.array([ev.member_elastic(x, e_at(x, m)[3]) for x in xs])  # (n_amplitudes, n_members)
+        return xs, ((b - b[0])[None, :] + (el - el[0]).T) * 1e3
+
+    _, coarse_members = member_totals(mesh)
     if k == len(lams) - 1:
         note.append(f"optimum at the edge of the scan (λ ≥ {lam_max:.3f} Å = "
                     f"{settings.amplitude_limit_fraction:g} of the shortest bond): the distortion may be larger "
@@ -231,18 +230,26 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         res = minimize_scalar(lambda x: sum(e_at(x)[:2]), bounds=(lo, hi), method="bounded",
                               options={"xatol": 1e-4 * max(d_min, 1.0)})
         lam_opt = float(res.x) if res.fun < sum(e_at(lams[k])[:2]) else float(lams[k])
-        if (sum(e_at(lam_opt)[:2]) - (e0b + e0e)) * 1e3 > -settings.stable_tolerance_meV_per_atom:
-            lam_opt = 0.0  # no gain worth the name: the parent is the optimum
+        if (sum(e_at(lam_opt)[:2]) - (e0b + e0e)) * 1e3 > -tol:
+            lam_opt = 0.0  # no gain worth the name for the nominal closure
+    # where the nominal closure gains nothing but another member of its range does, the mesh is converged at
+    # that member's optimum, so a softer closure's gain is judged on a converged mesh too
+    lam_ref = lam_opt
+    if lam_opt == 0.0 and np.min(coarse_members) < -tol:
+        lam_ref = float(lams[np.unravel_index(np.argmin(coarse_members), coarse_members.shape)[1]])
 
-    # k-mesh convergence of ΔE at the optimum: parent and optimum on the same, successively finer meshes
-    def delta(m):
+    # k-mesh convergence of ΔE at λ_ref: parent and distorted structure on the same, successively finer meshes;
+    # converged when two successive refinements change ΔE by less than the tolerance
+    def delta(m, lam):
         pb, pe, _, _ = e_at(0.0, m)
-        b, e, r, _ = e_at(lam_opt, m)
+        b, e, r, _ = e_at(lam, m)
         return (b - pb) * 1e3, (e - pe) * 1e3, r
 
     coarse_mesh = mesh
-    d_band, d_el, res_opt = delta(mesh)
-    converged = lam_opt == 0.0
+    d_band, d_el, res_opt = delta(mesh, lam_ref)
+    converged = lam_ref == 0.0
+    residual = 0.0 if converged else float("nan")
+    passes = 0
     spacing = settings.kspacing_per_A
     for _ in range(int(settings.max_refinements)):
         if converged:
@@ -254,21 +261,49 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         if np.prod(finer) > settings.max_kpoints:
             note.append(f"mesh refinement stopped at the {settings.max_kpoints}-point limit")
             break
-        nb, ne, nr = delta(finer)
-        converged = abs((nb + ne) - (d_band + d_el)) < settings.convergence_meV_per_atom
+        nb, ne, nr = delta(finer, lam_ref)
+        residual = abs((nb + ne) - (d_band + d_el))
+        passes = passes + 1 if residual < settings.convergence_meV_per_atom else 0
+        converged = passes >= 2
         mesh, d_band, d_el, res_opt = finer, nb, ne, nr
-    if not survives_stiffer and np.min(total) < -settings.threshold_meV_per_atom:
-        note.append(f"the gain vanishes with a stiffer repulsion (m = {parent.pair_exponent + STIFFER_BY:g}): "
-                    "verdict lowered to marginal")
     if not converged:
-        note.append(f"ΔE not converged to {settings.convergence_meV_per_atom} meV/atom on mesh {mesh}")
-    elif lam_opt > 0 and mesh != coarse_mesh:
-        # the amplitude came from the coarse scan: polish it on the converged mesh
+        note.append(f"ΔE not converged to {settings.convergence_meV_per_atom} meV/atom on two successive meshes "
+                    f"(last mesh {mesh}, last change {residual:.2f} meV/atom)")
+    if lam_opt > 0 and mesh != coarse_mesh:
+        # the amplitude came from the coarse scan: polish it on the final mesh
         res = minimize_scalar(lambda x: sum(e_at(x, mesh)[:2]), bounds=(0.5 * lam_opt, min(1.5 * lam_opt, lam_max)),
                               method="bounded", options={"xatol": 1e-4 * max(d_min, 1.0)})
         if res.fun < sum(e_at(lam_opt, mesh)[:2]):
             lam_opt = float(res.x)
-            d_band, d_el, res_opt = delta(mesh)
+    if lam_opt > 0:
+        d_band, d_el, res_opt = delta(mesh, lam_opt)
+    delta_total = d_band + d_el
+    if delta_total > -tol:
+        # no gain on the final mesh: shown as the parent (λ = 0), whatever the coarse scan suggested
+        lam_opt, d_band, d_el, delta_total = 0.0, 0.0, 0.0, 0.0
+        res_opt = e_at(0.0, mesh)[2]
+
+    # the closure's uncertainty range, on the same final mesh (amplitudes up to a little beyond the optimum)
+    if lam_ref > 0 and family.strain_axis is None:
+        xs, fine = member_totals(mesh, upto=min(lam_max, 2 * lam_ref + 2 * step))
+    else:
+        xs, fine = lams, coarse_members
+        if lam_ref > 0:
+            note.append("closure range evaluated on the scan mesh (relaxed cell)")
+    member_dE = np.minimum([_parabola_minimum(xs, row) for row in fine], 0.0)
+    nominal = len(member_dE) // 2
+    member_dE[nominal] = delta_total
+    d_lo, d_hi = float(member_dE.min()), float(member_dE.max())
+    distorting = float(np.mean(member_dE < -thr))
+    if np.all(member_dE > -tol):
+        verdict = "stable"
+    elif converged and np.all(member_dE < -thr):
+        verdict = "unstable"
+    else:
+        verdict = "marginal"
+        if not np.all(member_dE < -thr):
+            note.append(f"gains beyond {thr:g} meV/atom for {int(round(distorting * len(member_dE)))} of "
+                        f"{len(member_dE)} members of the closure range (ΔE {d_lo:.1f} … {d_hi:.1f} meV/atom)")
 
     strain_opt = e_at(lam_opt, mesh)[3]
     if abs(strain_opt) > 0.98 * MAX_STRAIN:
@@ -279,7 +314,6 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     img = follow_bonds(nn.i, nn.j, nn.image, shift)
     d_opt = bond_lengths_A(crystal_opt.lattice_A, crystal_opt.frac, nn.i, nn.j, img)
     shells = tuple(float(x) for x in np.unique(np.round(d_opt, 3)))
-    delta_total = d_band + d_el
     return CandidateResult(
         generator=family.generator,
         description=family.description,
@@ -296,14 +330,32 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         shell_distances_A=shells,
         converged=bool(converged),
         kmesh=tuple(int(x) for x in mesh),
-        verdict=_verdict(delta_total, converged, survives_stiffer, settings),
+        verdict=verdict,
         note="; ".join(note),
         scan_amplitude_A=tuple(float(x) for x in lams),
         scan_delta_E_meV_per_atom=tuple(float(x) for x in total),
         scan_delta_E_band_meV_per_atom=tuple(float(x) for x in band),
         scan_delta_E_elastic_meV_per_atom=tuple(float(x) for x in elas),
-        survives_stiffer_repulsion=survives_stiffer,
+        delta_E_range_meV_per_atom=(d_lo, d_hi),
+        distorting_fraction=distorting,
+        member_delta_E_meV_per_atom=tuple(float(x) for x in member_dE),
+        kmesh_error_meV_per_atom=float(residual),
         cell_strain=float(strain_opt),
         structure=crystal_opt,
         bonds=type(ev.bonds)(ev.bonds.i, ev.bonds.j, follow_bonds(ev.bonds.i, ev.bonds.j, ev.bonds.image, shift)),
     )
+
+
+def _parabola_minimum(x: np.ndarray, y: np.ndarray) -> float:
+    """Lowest value of y on the grid x, refined by the parabola through the three points around it."""
+    j = int(np.argmin(y))
+    best = float(y[j])
+    if 0 < j < len(y) - 1:
+        (x0, x1, x2), (y0, y1, y2) = x[j - 1:j + 2], y[j - 1:j + 2]
+        d = (x0 - x1) * (x0 - x2) * (x1 - x2)
+        a = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / d
+        b = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / d
+        c = (x1 * x2 * (x1 - x2) * y0 + x2 * x0 * (x2 - x0) * y1 + x0 * x1 * (x0 - x1) * y2) / d
+        if a > 0 and x0 <= -b / (2 * a) <= x2:
+            best = min(best, float(c - b**2 / (4 * a)))
+    return best

@@ -118,3 +118,71 @@ def elastic_model_for(crystal: Crystal, params, bonds, repulsion_eV: float, expo
     springs = _spring_per_bond(crystal, params, i, j)
     rep = np.where(springs > 0, 0.0, repulsion_eV)
     return ElasticModel(i, j, image, d0, rep, springs, float(exponent))
+
+
+# ---------------------------------------------------------------------------------------------- bulk modulus
+#: Relative uncertainty of the bulk modulus spanned by the verdict's ensemble (±25 %, common practice, no source).
+BULK_MODULUS_SPREAD = 0.25
+
+
+def _composition(species) -> tuple[tuple[str, int], ...]:
+    from collections import Counter
+    from math import gcd
+
+    counts = Counter(species)
+    g = 0
+    for n in counts.values():
+        g = gcd(g, n)
+    return tuple(sorted((el, n // g) for el, n in counts.items()))
+
+
+def _formula_composition(formula: str) -> tuple[tuple[str, int], ...]:
+    import re
+
+    parts = re.findall(r"([A-Z][a-z]?)(\d*)", formula.split(" ")[0])
+    return _composition([el for el, n in parts for _ in range(int(n) if n else 1)])
+
+
+def bulk_modulus_table() -> dict[tuple, tuple[float, str, str]]:
+    """Composition → (bulk modulus in GPa, measured phase, source) from data/bulk_moduli_GPa.csv."""
+    import csv
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "tb" / "data" / "bulk_moduli_GPa.csv"
+    table = {}
+    with open(path, newline="", encoding="utf-8") as fh:
+        for row in csv.DictReader(line for line in fh if not line.startswith("#")):
+            table[_formula_composition(row["formula"])] = (float(row["bulk_modulus_GPa"]), row["phase"],
+                                                          row["source"])
+    return table
+
+
+def cohen_estimate_GPa(crystal: Crystal, nn_distance_A: float, coordination: float) -> float | None:
+    """Cohen's bond-length law B = (1971 − 220 λ) d^−3.5 GPa for tetrahedral (4-coordinated) group IV, III–V and
+    II–VI solids (M. L. Cohen, Phys. Rev. B 32, 7988 (1985); constants as restated in
+    tb/data/bulk_modulus_estimate.md); None where it does not apply."""
+    from screener.structure.elements import GROUP
+
+    if abs(coordination - 4) > 1e-6:
+        return None
+    groups = sorted({GROUP[s] for s in crystal.species})
+    ionicity = {(14,): 0, (13, 15): 1, (12, 16): 2}.get(tuple(groups))
+    if ionicity is None:
+        return None
+    return (1971 - 220 * ionicity) * nn_distance_A ** -3.5
+
+
+def bulk_modulus_for(crystal: Crystal, user_GPa: float | None, nn_distance_A: float, coordination: float
+                     ) -> tuple[float | None, str]:
+    """(bulk modulus in GPa, where it came from): the user's value, else the bundled table of measured values,
+    else Cohen's estimate for tetrahedral semiconductors, else (None, why not)."""
+    if user_GPa is not None:
+        return float(user_GPa), "given by the user"
+    hit = bulk_modulus_table().get(_composition(crystal.species))
+    if hit is not None:
+        b, phase, source = hit
+        return b, f"measured, {phase} phase ({source}; bundled table)"
+    est = cohen_estimate_GPa(crystal, nn_distance_A, coordination)
+    if est is not None:
+        return float(est), "estimated from the bond length (Cohen, Phys. Rev. B 32, 7988 (1985))"
+    return None, "no measured value in the bundled table and no published estimate applies"

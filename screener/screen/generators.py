@@ -144,6 +144,12 @@ def _build_family(parent: Crystal, generator: str, description: str, q_frac, pol
     e = e / np.linalg.norm(e)
     phases = [phase] if phase is not None else [0.0, np.pi / 4, np.pi / 2]
     best = None
+    # a wave whose nodes sit on every atom moves nothing: its sine partner (nodes moved a quarter period) is the
+    # same pattern for a crystal written with another origin, so it is tried before the family is given up
+    if phase is not None:
+        c0 = np.cos(2 * np.pi * (x_parent @ q) + phase)
+        if np.max(np.abs(c0)) < 1e-9:
+            phases = [phase + np.pi / 2]
     for phi in phases:
         c = np.cos(2 * np.pi * (x_parent @ q) + phi)
         c[np.abs(c) < 1e-12] = 0.0
@@ -343,13 +349,13 @@ def _same_mode(a: DistortionFamily, b: DistortionFamily, rot_frac: np.ndarray, r
 
 
 def default_candidates(parent, generators=None, extra_q=(), symprec: float = SYMPREC_A,
-                       relax_cell: bool = False) -> list[DistortionFamily]:
+                       relax_cell: bool = False, notes: list | None = None) -> list[DistortionFamily]:
     """The default candidate set: every applicable dimerise and rhombohedral-split, plus longitudinal modulations
     at the zone-boundary points of the parent's cell; duplicates by symmetry are dropped (first name wins).
 
     ``generators`` restricts the set (names from GENERATORS); ``extra_q`` adds longitudinal modulations;
     ``relax_cell`` relaxes the rhombohedral angle of the rhombohedral split. ``parent`` is a Parent (see
-    screener.screen.parent) or a Crystal.
+    screener.screen.parent) or a Crystal. ``notes`` (a list) collects one line per family that moves no atom.
     """
     parent = _parent(parent, symprec)
     gens = tuple(generators) if generators else GENERATORS
@@ -367,9 +373,11 @@ def default_candidates(parent, generators=None, extra_q=(), symprec: float = SYM
     for q in qs:
         try:
             fams.append(modulate(parent, q))
-        except ParameterError:
+        except ParameterError as exc:
             if any(np.allclose(q, x) for x in extra_q):
                 raise
+            if notes is not None:
+                notes.append(f"no displacement pattern of the modulate kind at q = {fraction_label(q)}: {exc}")
     rot_frac = parent.symmetry.rotations
     rot_cart = parent.point_group_cart
     unique: list[DistortionFamily] = []

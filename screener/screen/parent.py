@@ -15,7 +15,10 @@ from functools import cached_property
 import numpy as np
 
 from screener.bz.kmesh import mesh_from_spacing
+from screener.errors import ParameterError
 from screener.screen.closure import (
+    BULK_MODULUS_SPREAD,
+    bulk_modulus_for,
     elastic_model_for,
     exponent_for_bulk_modulus,
     pair_repulsion_prefactor_eV,
@@ -23,7 +26,8 @@ from screener.screen.closure import (
 from screener.screen.settings import ScreenSettings
 from screener.structure.crystal import Crystal, supercell_pairs
 from screener.structure.neighbours import NeighbourList, nearest_neighbour_bonds
-from screener.structure.symmetry import StandardPrimitive, SymmetryInfo, analyse, standard_primitive
+from screener.structure.symmetry import StandardPrimitive, SymmetryInfo, analyse
+from screener.structure.symmetry import standardise as standardise_cell
 from screener.tb.bonds import BondList, _canonical, bond_search, find_bonds
 from screener.tb.params import ParameterSet, default_parameters
 
@@ -50,6 +54,14 @@ class ParentEnergetics:
     """k-mesh used for the parent, in its own cell."""
     valence_electrons_per_cell: float
     """Valence electrons the parent's model places in its bands, per cell."""
+    closure: str = "equilibrium"
+    """'bulk-modulus' (A and m fitted to equilibrium and B) or 'equilibrium' (A fitted, m fixed)."""
+    bulk_modulus_GPa: float | None = None
+    """Bulk modulus the closure was fitted to, GPa (None for the equilibrium-only fit)."""
+    bulk_modulus_source: str = ""
+    """Where the bulk modulus came from (user, bundled table with its source, estimate), or why there is none."""
+    ensemble: tuple = ()
+    """Closure members spanning its uncertainty: (label, A in eV, m) each; the nominal member is the middle one."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -57,7 +69,8 @@ class Parent:
     """One input structure, analysed once. Build with `build_parent`."""
 
     crystal: Crystal
-    """The structure as given."""
+    """The cell that is screened: the input's standardised primitive cell (or the input itself when
+    ``standardise=False``), in the input's Cartesian frame."""
     params: ParameterSet
     """Tight-binding parameters for its elements."""
     settings: ScreenSettings
@@ -72,6 +85,10 @@ class Parent:
     """First neighbour shell of every atom, both directions (see `nearest_neighbour_bonds`)."""
     bonds: BondList
     """Pairs the model couples, each once."""
+    input_crystal: Crystal = None
+    """The structure as given."""
+    input_symmetry: SymmetryInfo = None
+    """Symmetry analysis of the structure as given (the one spglib search)."""
 
     @cached_property
     def model(self):
@@ -121,31 +138,40 @@ class Parent:
 
 
 def build_parent(crystal: Crystal, params: ParameterSet | None = None,
-                 settings: ScreenSettings | None = None) -> Parent:
-    """Analyse ``crystal`` once: symmetry, standardised primitive cell, neighbours, first shell and bonds."""
+                 settings: ScreenSettings | None = None, *, standardise: bool = True) -> Parent:
+    """Analyse ``crystal`` once: symmetry, standardised primitive cell, neighbours, first shell and bonds.
+
+    With ``standardise`` (the default) everything downstream works on the standardised primitive cell, so the
+    same crystal gives the same candidates whatever its origin, cell choice or atom order; its symmetry is
+    carried over from the one analysis of the input, not searched again.
+    """
     settings = settings or ScreenSettings()
     if params is None:
         params = default_parameters(sorted(set(crystal.species)))
-    symmetry = analyse(crystal, settings.symprec_A)
-    neighbours = bond_search(crystal, params)
+    input_symmetry = analyse(crystal, settings.symprec_A)
+    primitive, prim_symmetry = standardise_cell(crystal, input_symmetry)
+    cell, symmetry = (primitive.crystal, prim_symmetry) if standardise else (crystal, input_symmetry)
+    neighbours = bond_search(cell, params)
     return Parent(
-        crystal=crystal,
+        crystal=cell,
         params=params,
         settings=settings,
         symmetry=symmetry,
-        primitive=standard_primitive(crystal, symmetry),
+        primitive=primitive,
         neighbours=neighbours,
-        shells=nearest_neighbour_bonds(crystal, neighbours=neighbours),
-        bonds=find_bonds(crystal, params, neighbours=neighbours),
+        shells=nearest_neighbour_bonds(cell, neighbours=neighbours),
+        bonds=find_bonds(cell, params, neighbours=neighbours),
+        input_crystal=crystal,
+        input_symmetry=input_symmetry,
     )
 
 
 def as_parent(parent: Parent | Crystal, symprec: float | None = None) -> Parent:
-    """``parent`` itself, or a Parent built from a bare Crystal with default parameters and settings."""
+    """``parent`` itself, or a Parent of a bare Crystal in its own setting (default parameters and settings)."""
     if isinstance(parent, Parent):
         return parent
     settings = ScreenSettings() if symprec is None else ScreenSettings(symprec_A=symprec)
-    return build_parent(parent, settings=settings)
+    return build_parent(parent, settings=settings, standardise=False)
 
 
 def parent_energetics(parent: Parent, step: float = 0.004) -> ParentEnergetics:
@@ -170,10 +196,33 @@ def parent_energetics(parent: Parent, step: float = 0.004) -> ParentEnergetics:
     curv = (rp.band_energy_eV - 2 * r0.band_energy_eV + rm.band_energy_eV) / step**2
     el = elastic_model_for(crystal, params, bonds, 1.0, settings.pair_exponent)
     n_rep = int(np.count_nonzero(el.repulsion_eV))
-    exponent = settings.pair_exponent
-    if settings.bulk_modulus_GPa is not None:
-        exponent = exponent_for_bulk_modulus(settings.bulk_modulus_GPa, crystal.volume_A3, slope, curv)
-    a = pair_repulsion_prefactor_eV(slope, n_rep, exponent)
+    closure, ensemble = settings.closure, []
+    shells = parent.shells
+    coordination = len(shells.i) / crystal.n_atoms
+    nn = float(shells.distance_A.min()) if len(shells.i) else float("nan")
+    b_gpa, b_source = bulk_modulus_for(crystal, settings.bulk_modulus_GPa, nn, coordination)
+    if closure == "bulk-modulus" and b_gpa is not None and slope > 0:
+        try:
+            for label, f in (("B − 25 %", 1 - BULK_MODULUS_SPREAD), ("B", 1.0), ("B + 25 %", 1 + BULK_MODULUS_SPREAD)):
+                m = exponent_for_bulk_modulus(b_gpa * f, crystal.volume_A3, slope, curv)
+                ensemble.append((f"{label} = {b_gpa * f:.1f} GPa", pair_repulsion_prefactor_eV(slope, n_rep, m), m))
+        except ParameterError as exc:
+            if settings.bulk_modulus_GPa is not None:
+                raise
+            b_source += f"; not usable ({exc}): equilibrium-only fit used"
+            closure, ensemble = "equilibrium", []
+    elif closure == "bulk-modulus":
+        closure = "equilibrium"
+        if slope <= 0:
+            b_source += "; the band energy does not favour compression, so no repulsion is fitted"
+        b_source += "; equilibrium-only fit used"
+    if closure == "equilibrium":
+        b_gpa = None if settings.bulk_modulus_GPa is None else b_gpa
+        m0 = settings.pair_exponent
+        # the exponent range m ± 1 around the fixed exponent, in both directions (common practice, no source)
+        for label, m in (("m − 1", max(m0 - 1.0, 0.5)), ("m", m0), ("m + 1", m0 + 1.0)):
+            ensemble.append((f"{label} = {m:g}", pair_repulsion_prefactor_eV(slope, n_rep, m), m))
+    _, a, exponent = ensemble[1]
     return ParentEnergetics(
         fermi_level_eV=r0.fermi_level_eV,
         band_energy_eV_per_atom=r0.band_energy_eV / n,
@@ -184,4 +233,8 @@ def parent_energetics(parent: Parent, step: float = 0.004) -> ParentEnergetics:
         gap_eV=r0.gap_eV,
         kmesh=tuple(mesh),
         valence_electrons_per_cell=float(model.n_electrons),
+        closure=closure,
+        bulk_modulus_GPa=b_gpa,
+        bulk_modulus_source=b_source,
+        ensemble=tuple(ensemble),
     )

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 from tqdm.auto import tqdm
 
@@ -59,6 +60,10 @@ class RankResult:
     """The parent structure as screened."""
     params: object
     """The ParameterSet used."""
+    screened_atoms: int = 0
+    """Atoms in the cell the screen worked on (the input's standardised primitive cell)."""
+    notes: tuple[str, ...] = ()
+    """Candidate families that could not be built, and similar remarks."""
 
     @property
     def fermi_level_eV(self) -> float:
@@ -82,7 +87,8 @@ class RankResult:
                 "shell_distances_A": " / ".join(f"{d:.3f}" for d in c.shell_distances_A),
                 "verdict": c.verdict,
                 "converged": c.converged,
-                "survives_stiffer_repulsion": c.survives_stiffer_repulsion,
+                "delta_E_range_meV_per_atom": " … ".join(f"{x:.1f}" for x in c.delta_E_range_meV_per_atom),
+                "distorting_fraction": round(c.distorting_fraction, 3),
                 "kmesh": "x".join(str(k) for k in c.kmesh),
                 "note": c.note,
             }
@@ -105,6 +111,15 @@ class RankResult:
                 "pair_repulsion_eV": self.parent.repulsion_eV,
                 "pair_exponent": self.parent.pair_exponent,
             },
+            "closure": {
+                "kind": self.parent.closure,
+                "bulk_modulus_GPa": self.parent.bulk_modulus_GPa,
+                "bulk_modulus_source": self.parent.bulk_modulus_source,
+                "members": [{"label": lab, "pair_repulsion_eV": a, "pair_exponent": m}
+                            for lab, a, m in self.parent.ensemble],
+            },
+            "screened_cell_atoms": self.screened_atoms,
+            "notes": list(self.notes),
             "candidates": [
                 {
                     "generator": c.generator,
@@ -121,7 +136,10 @@ class RankResult:
                     "shell_distances_A": list(c.shell_distances_A),
                     "verdict": c.verdict,
                     "converged": c.converged,
-                    "survives_stiffer_repulsion": c.survives_stiffer_repulsion,
+                    "delta_E_range_meV_per_atom": list(c.delta_E_range_meV_per_atom),
+                    "distorting_fraction": c.distorting_fraction,
+                    "member_delta_E_meV_per_atom": list(c.member_delta_E_meV_per_atom),
+                    "kmesh_error_meV_per_atom": c.kmesh_error_meV_per_atom,
                     "cell_strain": c.cell_strain,
                     "kmesh": list(c.kmesh),
                     "note": c.note,
@@ -145,6 +163,29 @@ class RankResult:
         }
 
 
+#: Order of verdicts in the ranked table: the most severe first.
+SEVERITY = {"unstable": 0, "marginal": 1, "stable": 2}
+
+
+def _in_input_setting(c: CandidateResult, context) -> CandidateResult:
+    """A candidate found on the standardised primitive cell, reported in the input's setting: q in fractions of
+    the input's reciprocal vectors, the optimum structure moved back to the input's origin."""
+    from dataclasses import replace
+
+    from screener.screen.generators import fraction_label
+
+    m = context.primitive.supercell_matrix
+    q = np.asarray(c.q_frac) @ m.T  # q·r is the same number in either basis: q_in = q_prim Mᵀ
+    q = q - np.floor(q + 1e-9)
+    q = np.where(np.abs(q) < 1e-12, 0.0, q)
+    s = c.structure
+    moved = Crystal(s.lattice_A, context.primitive.to_input_frame(s.cart_A) @ np.linalg.inv(s.lattice_A),
+                    s.species, s.labels, min_distance_A=s.min_distance_A)
+    b = c.bonds
+    bonds = type(b)(b.i, b.j, b.image, s.frac[b.j] + b.image - s.frac[b.i]) if b is not None else None
+    return replace(c, q_frac=tuple(float(x) for x in q), q_label=fraction_label(q), structure=moved, bonds=bonds)
+
+
 def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings: ScreenSettings | None = None,
          progress: bool = True, relax_cell: bool = False) -> RankResult:
     """Generate the candidate distortions of ``crystal``, evaluate each and rank them.
@@ -161,7 +202,12 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     """
     context = build_parent(crystal, params, settings)
     settings, params, sym = context.settings, context.params, context.symmetry
-    families = default_candidates(context, generators, extra_q, settings.symprec_A, relax_cell=relax_cell)
+    # --q is given in the input's reciprocal basis; the candidates live on the standardised primitive cell
+    m = context.primitive.supercell_matrix
+    extra_q = [tuple(float(x) for x in np.asarray(q, dtype=float) @ np.linalg.inv(m.T)) for q in extra_q]
+    notes: list[str] = []
+    families = default_candidates(context, generators, extra_q, settings.symprec_A, relax_cell=relax_cell,
+                                  notes=notes)
     bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
                disable=not progress, leave=False)
     try:
@@ -169,7 +215,9 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         results = [evaluate_family(f, context, progress=bar) for f in families]
     finally:
         bar.close()
-    results.sort(key=lambda c: (c.delta_E_meV_per_atom, c.generator))
+    results = [_in_input_setting(c, context) for c in results]
+    # the headline is the most severe verdict, then the largest gain
+    results.sort(key=lambda c: (SEVERITY[c.verdict], c.delta_E_meV_per_atom, c.generator))
     return RankResult(
         formula=crystal.formula,
         space_group_symbol=sym.symbol,
@@ -182,6 +230,8 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         safety=safety_note(crystal),
         parent_structure=crystal,
         params=params,
+        screened_atoms=context.crystal.n_atoms,
+        notes=tuple(notes),
     )
 
 
@@ -195,8 +245,8 @@ def verdict_summary(result: RankResult) -> str:
     if best.verdict == "marginal":
         if not best.converged:
             why = " (not k-converged)"
-        elif not best.survives_stiffer_repulsion:
-            why = " (gain vanishes with a stiffer repulsion)"
+        elif best.distorting_fraction < 1:
+            why = " (gain not robust over the closure's range)"
         else:
             why = " (gain below the threshold)"
     return (f"{result.formula} ({result.space_group_symbol}): {word}{why} — best {best.generator} "

@@ -7,6 +7,9 @@ from dataclasses import dataclass
 from screener.errors import ParameterError
 from screener.structure.symmetry import SYMPREC_A
 
+#: Elastic closures offered (see screener.screen.closure).
+CLOSURES = ("bulk-modulus", "equilibrium")
+
 
 @dataclass(frozen=True)
 class ScreenSettings:
@@ -35,7 +38,10 @@ class ScreenSettings:
     pair_exponent: float = 4.0
     """Exponent m of the pair repulsion A (d0/d)^m."""
     bulk_modulus_GPa: float | None = None
-    """If given, m is chosen so the parent has this bulk modulus (overrides pair_exponent)."""
+    """The parent's bulk modulus, GPa (default: the bundled table of measured values, else a published estimate)."""
+    closure: str = "bulk-modulus"
+    """'bulk-modulus': repulsion fitted to equilibrium and the bulk modulus (exponent m from B); 'equilibrium':
+    the older fit to equilibrium alone with the fixed exponent ``pair_exponent``."""
     threshold_meV_per_atom: float = 1.0
     """A converged gain beyond this is 'unstable'; smaller gains are 'marginal'."""
     stable_tolerance_meV_per_atom: float = 0.01
@@ -48,6 +54,8 @@ class ScreenSettings:
             v = getattr(self, name)
             if not (isinstance(v, (int, float)) and v > 0):
                 raise ParameterError(f"{name} must be a positive number, got {v!r}")
+        if self.closure not in CLOSURES:
+            raise ParameterError(f"closure must be one of {', '.join(CLOSURES)}, got {self.closure!r}")
         if not 0 < self.refine_factor < 1:
             raise ParameterError(f"refine_factor must lie between 0 and 1, got {self.refine_factor!r}")
         if int(self.n_scan) < 3:

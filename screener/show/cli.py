@@ -216,11 +216,12 @@ def _parse_q(text: str):
 
 
 def _screen_settings(args):
-    from screener.screen.balance import ScreenSettings
+    from screener.screen.settings import ScreenSettings
 
     return ScreenSettings(
         kspacing_per_A=args.kspacing,
         pair_exponent=args.pair_exponent,
+        closure=args.closure,
         bulk_modulus_GPa=args.bulk_modulus_GPa,
         threshold_meV_per_atom=args.threshold_meV,
         symprec_A=args.symprec,
@@ -300,7 +301,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
     p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
     p.add_argument("--write-structures", help="write each optimum as CIF into this folder")
-    p.add_argument("--bulk-modulus-GPa", type=float, help="calibrate the repulsion so the parent has this bulk modulus")
+    p.add_argument("--bulk-modulus-GPa", type=float,
+                   help="the parent's bulk modulus in GPa (default: bundled table of measured values, else an estimate)")
+    p.add_argument("--closure", choices=["bulk-modulus", "equilibrium"], default="bulk-modulus",
+                   help="elastic closure: fitted to equilibrium and the bulk modulus (default), or to equilibrium "
+                        "alone with the fixed --pair-exponent")
     p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
     p.add_argument("--threshold-meV", type=float, default=1.0,
                    help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")

@@ -10,6 +10,14 @@ from screener.screen.rank import CAUTION, RankResult, rank, verdict_summary
 _STRUCTURE_ENDINGS = (".cif", ".vasp", ".poscar", ".json")
 
 
+def _closure_line(parent) -> str:
+    if parent.closure == "bulk-modulus":
+        return (f"closure: fitted to equilibrium and B = {parent.bulk_modulus_GPa:.1f} GPa ± 25 % "
+                f"({parent.bulk_modulus_source})")
+    ms = "/".join(f"{m:g}" for _, _, m in parent.ensemble)
+    return f"closure: fitted to equilibrium only, m = {ms} ({parent.bulk_modulus_source})"
+
+
 def format_rank_text(result: RankResult, source: str = "") -> str:
     """The ranked table as plain text with a header, the verdict line and the cautions."""
     import pandas as pd
@@ -19,7 +27,8 @@ def format_rank_text(result: RankResult, source: str = "") -> str:
         f"({result.space_group_number}),  {result.n_atoms} atoms/cell,  "
         f"{result.valence_electrons_per_cell:g} valence electrons/cell",
         f"parent: E_F = {result.fermi_level_eV:.3f} eV, gap {result.parent.gap_eV:.3f} eV, "
-        f"pair repulsion A = {result.parent.repulsion_eV:.3f} eV per bond, m = {result.parent.pair_exponent:g}",
+        f"pair repulsion A = {result.parent.repulsion_eV:.3f} eV per bond, m = {result.parent.pair_exponent:.2f}",
+        _closure_line(result.parent),
         "",
     ]
     table = result.table()
@@ -27,18 +36,21 @@ def format_rank_text(result: RankResult, source: str = "") -> str:
         body = "no applicable candidate distortion"
     else:
         cols = ["rank", "generator", "q", "space_group", "displacement_A", "delta_E_meV_per_atom",
-                "delta_E_band_meV_per_atom", "delta_E_elastic_meV_per_atom", "gap_eV", "shell_distances_A",
-                "verdict", "kmesh"]
+                "delta_E_band_meV_per_atom", "delta_E_elastic_meV_per_atom", "delta_E_range_meV_per_atom", "gap_eV",
+                "shell_distances_A", "verdict", "kmesh"]
         show = table[cols].rename(columns={
             "displacement_A": "u_max (Å)", "delta_E_meV_per_atom": "ΔE (meV/at)",
             "delta_E_band_meV_per_atom": "band", "delta_E_elastic_meV_per_atom": "elastic",
             "gap_eV": "gap (eV)", "shell_distances_A": "nn bonds (Å)", "space_group": "product",
+            "delta_E_range_meV_per_atom": "ΔE range",
         })
         with pd.option_context("display.width", 200, "display.max_columns", 20, "display.max_colwidth", 40):
             body = show.to_string(index=False)
         notes = [f"  {r['rank']}. {r['note']}" for _, r in table.iterrows() if r["note"]]
         if notes:
             body += "\nnotes:\n" + "\n".join(notes)
+    if result.notes:
+        body += "\n" + "\n".join(f"  - {n}" for n in result.notes)
     tail = ["", verdict_summary(result), "", CAUTION]
     if result.safety:
         tail.append(result.safety)

@@ -1,8 +1,9 @@
 """Element symbols, periodic-table groups and default valence-electron counts.
 
 Group numbers follow the IUPAC 1-18 numbering (from memory; any periodic table). Lanthanides and actinides are
-given group 3. Default valence counts follow the rule stated in the project issues: group number for groups 1-12,
-group - 10 for groups 13-18 (the s+p shell), with He = 2.
+given group 3. Default valence counts: group number for groups 1-11 (open d shells are valence), group - 10 for groups 12-18
+(the filled d shell is core, as in sp tight-binding treatments of II-VI and III-V compounds; common practice, no
+source), with He = 2.
 """
 
 from __future__ import annotations
@@ -62,4 +63,5 @@ def valence_electrons(symbol: str) -> int:
     if s == "He":
         return 2
     g = GROUP[s]
-    return g - 10 if g >= 13 else g
+    # a filled d¹⁰ shell is core: groups 12–18 count only their s and p electrons
+    return g - 10 if g >= 12 else g

@@ -116,6 +116,10 @@ def standard_primitive(crystal: Crystal, info: SymmetryInfo) -> StandardPrimitiv
     Generating candidates on this cell makes them independent of how the input was written: origin, cell choice
     (conventional, supercell, non-standard basis) and atom order all map onto the same cell.
     """
+    return _standardise(crystal, info)[0]
+
+
+def _standardise(crystal: Crystal, info: SymmetryInfo):
     P = info.transformation_matrix
     conv = np.linalg.inv(P).T @ crystal.lattice_A
     centring = CENTRING.get(info.symbol[0], np.eye(3))
@@ -126,10 +130,10 @@ def standard_primitive(crystal: Crystal, info: SymmetryInfo) -> StandardPrimitiv
     frac = np.mod(x_prim[keep], 1.0)
     frac[np.isclose(frac, 1.0, atol=1e-9)] = 0.0
     species = [crystal.species[k] for k in keep]
-    labels = [crystal.labels[k] for k in keep]
     order = np.lexsort((np.round(frac[:, 2], 6), np.round(frac[:, 1], 6), np.round(frac[:, 0], 6), species))
-    prim_crystal = Crystal(prim, frac[order], [species[k] for k in order], [labels[k] for k in order],
-                           min_distance_A=crystal.min_distance_A)
+    source = keep[order]  # input atom behind each primitive atom
+    prim_crystal = Crystal(prim, frac[order], [crystal.species[k] for k in source],
+                           [crystal.labels[k] for k in source], min_distance_A=crystal.min_distance_A)
     m = crystal.lattice_A @ np.linalg.inv(prim)
     if np.max(np.abs(m - np.round(m))) > 1e-4:
         raise SymmetryError(
@@ -137,7 +141,36 @@ def standard_primitive(crystal: Crystal, info: SymmetryInfo) -> StandardPrimitiv
             f"(M = {np.round(m, 4).tolist()}); try a different --symprec"
         )
     shift = info.origin_shift @ np.linalg.inv(P).T @ crystal.lattice_A
-    return StandardPrimitive(prim_crystal, np.round(m).astype(int), shift)
+    std = StandardPrimitive(prim_crystal, np.round(m).astype(int), shift)
+    # the same operations in the primitive basis: x_p = Q x + c, so R_p = Q R Q⁻¹ and t_p = Q t + c − R_p c
+    q = np.linalg.inv(centring).T @ P
+    c = np.linalg.inv(centring).T @ info.origin_shift
+    rots = np.einsum("ij,njk,kl->nil", q, info.rotations, np.linalg.inv(q))
+    trans = info.translations @ q.T + c - np.einsum("nij,j->ni", rots, c)
+    rots_i = np.round(rots).astype(int)
+    if np.max(np.abs(rots - rots_i)) > 1e-6:
+        raise SymmetryError(f"internal: the operations of {crystal.formula} are not integer in its primitive cell")
+    trans = np.mod(trans + 1e-9, 1.0) - 1e-9
+    key = np.concatenate([rots_i.reshape(len(rots_i), -1), np.round(trans * 1e6)], axis=1)
+    first = np.unique(key, axis=0, return_index=True)[1]
+    first.sort()
+    spg_index = info.mapping_to_primitive[source]  # spglib's primitive index of each of our atoms
+    mine = np.empty(spg_index.max() + 1, dtype=int)
+    mine[spg_index] = np.arange(len(source))
+    orbit = mine[info.mapping_to_primitive[info.equivalent_atoms[source]]]
+    rep = np.array([np.flatnonzero(orbit == orbit[k]).min() for k in range(len(source))])
+    prim_info = SymmetryInfo(
+        symbol=info.symbol, number=info.number, wyckoff=tuple(info.wyckoff[k] for k in source),
+        equivalent_atoms=rep, rotations=rots_i[first], translations=trans[first],
+        primitive_atoms=len(source), symprec_A=info.symprec_A, transformation_matrix=centring.T.copy(),
+        origin_shift=np.zeros(3), mapping_to_primitive=np.arange(len(source)),
+    )
+    return std, prim_info
+
+
+def standardise(crystal: Crystal, info: SymmetryInfo) -> tuple[StandardPrimitive, SymmetryInfo]:
+    """Standardised primitive cell (see `standard_primitive`) and its symmetry, derived from ``info`` alone."""
+    return _standardise(crystal, info)
 
 
 def _from_spglib_cell(cell, like: Crystal) -> Crystal:

@@ -4,7 +4,7 @@ Defaults
 --------
 * On-site energies: NIST LDA atomic eigenvalues of the neutral atoms (Kotochigova, Levine, Shirley, Stiles &
   Clark, 1997), table ``data/onsite_energies_eV.csv`` (source in its header).
-* Orbitals: groups 1–2 (and H, He): ``s``; groups 13–18: ``s, p``; d-block groups 3–12: ``s, d`` (Pd: ``d``,
+* Orbitals: groups 1–2 (and H, He): ``s``; groups 13–18: ``s, p``; d-block groups 3–11: ``s, d``; group 12 (Zn, Cd, Hg: filled d shell kept in the core): ``s`` (Pd: ``d``,
   its 5s is empty in the free atom). The f-block has no defaults. The p level of groups 1, 2 and 12 is empty in
   the free atom, has no table entry, and must be given in a parameter file if wanted.
 * Valence electrons: ``screener.elements.valence_electrons`` (group number; group − 10 for groups 13–18).
@@ -229,7 +229,9 @@ def default_species(element: str) -> SpeciesParams:
             f"[species.{el}] with orbitals, onsite_eV and valence_electrons in a parameter file"
         )
     g = GROUP[el]
-    shells = ["s", "p"] if g >= 13 else (["s", "d"] if 3 <= g <= 12 else ["s"])
+    # a filled d shell (group 12, and the d¹⁰ of groups 13–18) stays in the core, as in sp treatments of II–VI and
+    # III–V compounds; only open d shells (groups 3–11) are in the default basis
+    shells = ["s", "p"] if g >= 13 else (["s", "d"] if 3 <= g <= 11 else ["s"])
     shells = [s for s in shells if s in table[el]]
     orbitals = expand_orbitals(shells)
     onsite = {o: table[el][o[0]] for o in orbitals}

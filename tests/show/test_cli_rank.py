@@ -13,7 +13,8 @@ from screener.structure.symmetry import analyse
 REQUIRED_CANDIDATE_KEYS = {
     "generator", "q", "supercell_atoms", "space_group", "displacement_A", "delta_E_meV_per_atom",
     "delta_E_band_meV_per_atom", "delta_E_elastic_meV_per_atom", "gap_eV", "shell_distances_A", "verdict",
-    "converged", "kmesh",
+    "converged", "kmesh", "delta_E_range_meV_per_atom", "distorting_fraction", "member_delta_E_meV_per_atom",
+    "kmesh_error_meV_per_atom",
 }
 
 # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): t0 = 2.5 eV, α = 4.1 eV/Å, K = 21 eV/Å², a = 1.22 Å

@@ -1,0 +1,78 @@
+"""The same crystal gives the same verdict however it is written: origin, atom order, cell choice, orientation."""
+
+import numpy as np
+import pytest
+
+from screener.screen.rank import rank
+from screener.screen.settings import ScreenSettings
+from screener.structure.crystal import Crystal
+from screener.tb.param_file import parameters_from_dict
+
+# coarse but identical numerical settings for every writing of a crystal (common practice, no source)
+SETTINGS = ScreenSettings(kspacing_per_A=0.3, max_refinements=2, convergence_meV_per_atom=2.0)
+FCC = np.array([[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]])
+
+
+def _rotation(seed=7):
+    q, _ = np.linalg.qr(np.random.default_rng(seed).normal(size=(3, 3)))
+    return q * np.sign(np.linalg.det(q))
+
+
+def sc_bi(a=3.2834):
+    # Bi at the volume per atom of its A7 phase (tests/data/known_phases/Bi_simple_cubic_parent.cif)
+    return Crystal(np.eye(3) * a, [[0, 0, 0]], ["Bi"])
+
+
+def writings_of_simple_cubic():
+    c = sc_bi()
+    a = c.lattice_A[0, 0]
+    yield "as given", c
+    yield "origin at (1/2,1/2,1/2)", Crystal(c.lattice_A, [[0.5, 0.5, 0.5]], ["Bi"])
+    yield "2x2x2 supercell", c.supercell(2)
+    # a face-centred-type 2-atom cell of the same simple-cubic lattice: vectors (0,a,a),(a,0,a),(a,a,0)
+    yield "2-atom fcc-type cell", Crystal(np.array([[0, 1, 1], [1, 0, 1], [1, 1, 0]]) * a,
+                                         [[0, 0, 0], [0.5, 0.5, 0.5]], ["Bi", "Bi"])
+    yield "rotated frame", Crystal(c.lattice_A @ _rotation().T, c.frac, c.species)
+
+
+def writings_of_rocksalt():
+    a = 5.993  # GeTe at the volume of its rhombohedral phase (tests/data/known_phases/GeTe_rocksalt_parent.cif)
+    yield "as given", Crystal(FCC * a, [[0, 0, 0], [0.5, 0.5, 0.5]], ["Ge", "Te"])
+    yield "origin moved by 1/4, Te first", Crystal(FCC * a, [[0.25, 0.25, 0.25], [0.75, 0.75, 0.75]], ["Te", "Ge"])
+    yield "8-atom conventional cell", Crystal(np.eye(3) * a, [[0, 0, 0], [0, .5, .5], [.5, 0, .5], [.5, .5, 0],
+                                                             [.5, .5, .5], [.5, 0, 0], [0, .5, 0], [0, 0, .5]],
+                                              ["Ge"] * 4 + ["Te"] * 4)
+    yield "rotated frame", Crystal(FCC * a @ _rotation(3).T, [[0, 0, 0], [0.5, 0.5, 0.5]], ["Ge", "Te"])
+
+
+SSH = {  # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
+    "species": {"C": {"orbitals": ["pz"], "onsite_eV": {"pz": 0.0}, "valence_electrons": 1}},
+    "bond": {"C-C": {"law": "linear", "r0_A": 1.22, "V_eV": {"pp_pi": -2.5}, "slope_eV_per_A": {"pp_pi": 4.1},
+                     "cutoff_A": 1.6, "spring_eV_per_A2": 21.0}},
+}
+
+
+def writings_of_chain():
+    lat = np.diag([1.22, 10.0, 10.0])
+    yield "as given", Crystal(lat, [[0, 0, 0]], ["C"])
+    yield "origin shifted", Crystal(lat, [[0.37, 0.5, 0.5]], ["C"])
+    yield "doubled cell", Crystal(np.diag([2.44, 10.0, 10.0]), [[0, 0, 0], [0.5, 0, 0]], ["C", "C"])
+
+
+def _headline(crystal, params=None):
+    result = rank(crystal, params, settings=SETTINGS, progress=False)
+    best = result.candidates[0]
+    return best.verdict, best.delta_E_meV_per_atom, best.space_group_number, best.generator
+
+
+@pytest.mark.parametrize("family", ["simple cubic", "rocksalt", "chain"])
+def test_verdict_and_delta_E_do_not_depend_on_how_the_crystal_is_written(family):
+    writings = {"simple cubic": writings_of_simple_cubic, "rocksalt": writings_of_rocksalt,
+                "chain": writings_of_chain}[family]()
+    params = parameters_from_dict(SSH, ["C"]) if family == "chain" else None
+    results = {name: _headline(c, params) for name, c in writings}
+    ref = results["as given"]
+    for name, (verdict, dE, sg, gen) in results.items():
+        assert (verdict, sg, gen) == (ref[0], ref[2], ref[3]), \
+            f"{family}, {name}: {verdict} {sg} {gen} vs {ref}"
+        assert dE == pytest.approx(ref[1], abs=1.0), f"{family}, {name}: ΔE {dE} vs {ref[1]}"
