@@ -1,15 +1,20 @@
 """Which pairs interact: the bond list of a model.
 
 Rule (``find_bonds``): for a pair of elements whose bond entry gives ``cutoff_A``, every pair up
-to that length. Otherwise the neighbour-shell rule: the shells of atom i are its neighbour distances grouped from
-the shortest, shell s holding the distances up to (1 + tol)·(shortest distance not in shells < s); a bond i–j is
-kept when j lies in one of the first ``shells`` (default 1) shells of i, or i in those of j. tol =
-``SHELL_TOLERANCE`` = 0.1 (common practice, no source). Each bond is listed once: i < j, or i == j with the first
+to that length. Otherwise, by default, the first coordination cluster: every contact of atom i up to
+``CLUSTER_FACTOR`` = 1.3 times i's shortest contact, which keeps the 3 + 3 bonds of the A7 structure (ratio 1.15–1.24)
+and the 8 + 6 of bcc (1.155) but not the second shells of simple cubic, fcc, rocksalt or diamond (≥ 1.41) (the
+factor is common practice, no source). A bond entry with ``shells = N`` uses the neighbour-shell rule instead:
+the shells of atom i are its neighbour distances grouped from the shortest, shell s holding the distances up to
+(1 + tol)·(shortest distance not in shells < s), tol = ``SHELL_TOLERANCE`` = 0.1 (common practice, no source).
+Either way a bond i–j is kept when j is in i's set or i in j's. A cut-off that leaves out contacts within
+``CLUSTER_FACTOR`` × the shortest gets a warning. Each bond is listed once: i < j, or i == j with the first
 non-zero component of the image positive.
 """
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -21,6 +26,8 @@ from screener.tb.params import ParameterSet, default_parameters
 
 #: Relative tolerance grouping neighbour distances into one shell (common practice, no source).
 SHELL_TOLERANCE = 0.1
+#: Contacts up to this multiple of each atom's shortest contact form its first coordination cluster.
+CLUSTER_FACTOR = 1.3
 #: Longest neighbour search when looking for higher shells, Å.
 MAX_SEARCH_A = 30.0
 
@@ -72,8 +79,8 @@ def _bond_rule(params: ParameterSet, a: str, b: str) -> tuple[float | None, int]
     """(cutoff_A, shells) for a pair without building its hoppings (which may legitimately raise)."""
     bp = params.bond_params.get(tuple(sorted((a, b))))
     if bp is None:
-        return None, 1
-    return bp.cutoff_A, bp.shells
+        return None, 0
+    return bp.cutoff_A, (0 if bp.shells is None else bp.shells)
 
 
 def _rules(crystal: Crystal, params: ParameterSet):
@@ -93,8 +100,9 @@ def bond_search(crystal: Crystal, params: ParameterSet | None = None, *,
     _, rules = _rules(crystal, params)
     cutoffs = [c for c, _ in rules.values() if c is not None]
     shells_needed = max((s for c, s in rules.values() if c is None), default=0)
+    cluster = any(c is None and s == 0 for c, s in rules.values())
     dmin = crystal._shortest_contact()[0]
-    radius = max(cutoffs + [dmin * (1 + shell_tolerance) * 1.5])
+    radius = max(cutoffs + [dmin * (1 + shell_tolerance) * 1.5, dmin * CLUSTER_FACTOR * 1.05])
     n = crystal.n_atoms
     while True:
         nl = find_neighbours(crystal.lattice_A, crystal.frac, radius)
@@ -109,6 +117,10 @@ def bond_search(crystal: Crystal, params: ParameterSet | None = None, *,
                 closed = False
                 break
             bound = nearest * (1 + shell_tolerance)
+        if closed and cluster:
+            nearest = np.full(n, np.inf)
+            np.minimum.at(nearest, nl.i, nl.distance_A)
+            closed = bool(np.all(np.isfinite(nearest)) and np.all(nearest * CLUSTER_FACTOR < radius))
         if closed or radius >= MAX_SEARCH_A:
             return nl
         radius = min(radius * 1.6, MAX_SEARCH_A)
@@ -133,9 +145,26 @@ def find_bonds(crystal: Crystal, params: ParameterSet | None = None, *,
         sel = (si[nl.i] == elements.index(a)) & (si[nl.j] == elements.index(b))
         if cutoff is not None:
             keep |= sel & (nl.distance_A <= cutoff + 1e-9)
-    # shell rule for pair types without a cutoff; recompute the bound per shell count in use
+    nearest_any = np.full(n, np.inf)
+    np.minimum.at(nearest_any, nl.i, nl.distance_A)
+    # a user cut-off that leaves out part of the first coordination cluster deserves a word
+    for (a, b), (cutoff, _) in rules.items():
+        if cutoff is None or a > b:
+            continue
+        sel = (((si[nl.i] == elements.index(a)) & (si[nl.j] == elements.index(b)))
+               | ((si[nl.i] == elements.index(b)) & (si[nl.j] == elements.index(a))))
+        missed = sel & (nl.distance_A > cutoff + 1e-9) & (nl.distance_A <= nearest_any[nl.i] * CLUSTER_FACTOR)
+        if np.any(missed):
+            warnings.warn(
+                f"the {a}-{b} cutoff_A = {cutoff} Å leaves out contacts at {nl.distance_A[missed].min():.3f} Å, "
+                f"within {CLUSTER_FACTOR} x the shortest contact; raise cutoff_A if they are bonds",
+                stacklevel=2,
+            )
+    # shell rules for pair types without a cutoff: 0 = the coordination cluster, N = the first N shells
     for nshell in sorted({s for c, s in rules.values() if c is None}):
         bound = np.zeros(n)
+        if nshell == 0:
+            bound = np.where(np.isfinite(nearest_any), nearest_any * CLUSTER_FACTOR, 0.0)
         for _ in range(nshell):
             rest = nl.distance_A > bound[nl.i] + 1e-9
             nearest = np.full(n, np.inf)

@@ -19,9 +19,10 @@
                                       # law = exponential:  V = V0 exp(−(d − r0)/decay_A), or with `exponent` q
                                       #                     instead of decay_A: V = V0 exp(−q (d/r0 − 1))
     eta = { pp_sigma = 3.24 }         # law = harrison:     V = η ħ²/(m d²)   (instead of V_eV)
-    cutoff_A = 1.6                    # keep every pair up to this length (else first neighbour shell)
+    cutoff_A = 1.6                    # keep every pair up to this length (else the coordination cluster)
     taper_A = 0.2                     # optional: cosine taper to 0 over the last taper_A before cutoff_A
-    shells = 1                        # neighbour shells kept when no cutoff_A is given
+    shells = 1                        # neighbour shells kept when no cutoff_A is given (default: every contact
+                                      # up to 1.3 x each atom's shortest, the first coordination cluster)
     spring_eV_per_A2 = 21.0           # optional harmonic bond spring (used by the energy comparator)
 
 A bond entry replaces the default for that pair. In ``"A-B"`` the first element is atom A of the Slater–Koster

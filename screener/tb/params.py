@@ -10,8 +10,8 @@ Defaults
 * Valence electrons: ``screener.elements.valence_electrons`` (group number; group − 10 for groups 13–18).
 * Hoppings: Harrison's universal law V = η ħ²/(m d²), ħ²/m = 7.62 eV Å², with the 1980 coefficients (Harrison,
   Electronic Structure and the Properties of Solids, 1980) or the revised 1981 ones (Harrison, Phys. Rev. B 24,
-  5835 (1981)), table ``data/harrison_coefficients.csv``. These are first-neighbour values: default bonds keep the
-  first neighbour shell only. There are no universal d couplings here: a bond touching a species with d orbitals
+  5835 (1981)), table ``data/harrison_coefficients.csv``. These are first-neighbour values, applied by default to
+  the first coordination cluster (see ``screener.tb.bonds``). There are no universal d couplings here: a bond touching a species with d orbitals
   needs a ``[bond."A-B"]`` entry in a parameter file, otherwise ``ParameterSet.bond`` raises ParameterError.
 
 The parameter-file format is described in ``screener.tb.param_file``.
@@ -114,8 +114,8 @@ class BondParams:
     """Width of the cosine taper ending at cutoff_A, Å (0: hard cutoff)."""
     spring_eV_per_A2: float | None = None
     """Harmonic bond spring for the elastic energy, eV/Å² (None: use the fitted pair repulsion)."""
-    shells: int = 1
-    """Neighbour shells kept when cutoff_A is None."""
+    shells: int | None = None
+    """Neighbour shells kept when cutoff_A is None; None (the default): the first coordination cluster."""
     universal: bool = False
     """True for the built-in Harrison defaults."""
     source: str = ""
