@@ -195,6 +195,25 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
                 progress.update(1)
         return cache[key]
 
+    # the other published set of universal hoppings, with its own closure fitted to the same bulk modulus, is part
+    # of the verdict's uncertainty range (fixed-cell families only)
+    alt = context.alternative_energetics if family.strain_axis is None else None
+    ev_alt, cache_alt = None, {}
+    if alt is not None:
+        # two separate checks, not their cross product: the closure's range with the parent's own hoppings, and
+        # the other hopping set with its nominal closure
+        ev_alt = _Evaluator(family, context.alternative_params, alt.repulsion_eV, alt.pair_exponent, settings,
+                            bonds=ev.bonds, reference_rotations=ev.reference_rotations,
+                            ensemble=alt.ensemble[len(alt.ensemble) // 2:len(alt.ensemble) // 2 + 1])
+
+    def e_alt(lam: float, m):
+        key = (round(float(lam), 10), tuple(m))
+        if key not in cache_alt:
+            cache_alt[key] = ev_alt.energies(lam, m)
+            if progress is not None:
+                progress.update(1)
+        return cache_alt[key]
+
     e0b, e0e, _, _ = e_at(0.0)
     step = lams[1]
     while True:
@@ -213,11 +232,17 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     note = []
 
     def member_totals(m, upto=np.inf):
-        """(n_members, n_amplitudes) ΔE of every closure member along the scan amplitudes on mesh m, meV/atom."""
+        """(n_members, n_amplitudes) ΔE of every closure member along the scan amplitudes on mesh m, meV/atom:
+        the closure's range with the parent's hoppings, then (if any) with the other universal set."""
         xs = lams[lams <= upto + 1e-12]
-        b = np.array([e_at(x, m)[0] for x in xs])
-        el = np.array([ev.member_elastic(x, e_at(x, m)[3]) for x in xs])  # (n_amplitudes, n_members)
-        return xs, ((b - b[0])[None, :] + (el - el[0]).T) * 1e3
+        rows = []
+        for evaluator, energy in ((ev, e_at), (ev_alt, e_alt)):
+            if evaluator is None:
+                continue
+            b = np.array([energy(x, m)[0] for x in xs])
+            el = np.array([evaluator.member_elastic(x, energy(x, m)[3]) for x in xs])  # (n_amplitudes, n_members)
+            rows.append(((b - b[0])[None, :] + (el - el[0]).T) * 1e3)
+        return xs, np.concatenate(rows)
 
     _, coarse_members = member_totals(mesh)
     if k == len(lams) - 1:
@@ -291,8 +316,7 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         if lam_ref > 0:
             note.append("closure range evaluated on the scan mesh (relaxed cell)")
     member_dE = np.minimum([_parabola_minimum(xs, row) for row in fine], 0.0)
-    nominal = len(member_dE) // 2
-    member_dE[nominal] = delta_total
+    member_dE[len(parent.ensemble) // 2] = delta_total  # the nominal member, polished above
     d_lo, d_hi = float(member_dE.min()), float(member_dE.max())
     distorting = float(np.mean(member_dE < -thr))
     if np.all(member_dE > -tol):

@@ -103,6 +103,25 @@ class Parent:
         return parent_energetics(self)
 
     @cached_property
+    def alternative_params(self) -> ParameterSet | None:
+        """The same parameters with the other published set of universal hoppings (Harrison 1980 ↔ 1981), when
+        every bond uses the universal law; None when a parameter file sets its own bonds."""
+        from dataclasses import replace
+
+        from screener.tb.params import HARRISON_SETS
+
+        if self.params.bond_params:
+            return None
+        other = [h for h in HARRISON_SETS if h != self.params.harrison_set][0]
+        return replace(self.params, harrison_set=other)
+
+    @cached_property
+    def alternative_energetics(self) -> ParentEnergetics | None:
+        """Energetics and closure of the parent with `alternative_params` (fitted to the same bulk modulus)."""
+        alt = self.alternative_params
+        return None if alt is None else parent_energetics(self, params=alt)
+
+    @cached_property
     def point_group_cart(self) -> np.ndarray:
         """(n_ops, 3, 3) point-group rotations as Cartesian matrices acting on column vectors."""
         lat = self.crystal.lattice_A
@@ -174,13 +193,19 @@ def as_parent(parent: Parent | Crystal, symprec: float | None = None) -> Parent:
     return build_parent(parent, settings=settings, standardise=False)
 
 
-def parent_energetics(parent: Parent, step: float = 0.004) -> ParentEnergetics:
-    """Band energy of the parent and the pair repulsion that holds it in equilibrium under uniform scaling."""
+def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet | None = None) -> ParentEnergetics:
+    """Band energy of the parent and the pair repulsion that holds it in equilibrium under uniform scaling.
+
+    ``params`` replaces the parent's parameters (same bonds), e.g. for the other set of universal hoppings.
+    """
     from screener.bz.integrate import solve_on_mesh
     from screener.tb.model import build_model
 
-    crystal, params, settings, bonds = parent.crystal, parent.params, parent.settings, parent.bonds
-    model = parent.model
+    crystal, settings, bonds = parent.crystal, parent.settings, parent.bonds
+    if params is None:
+        params, model = parent.params, parent.model
+    else:
+        model = build_model(crystal, params, bonds=bonds)
     mesh = mesh_from_spacing(crystal, settings.kspacing_per_A * settings.refine_factor, model.periodic)
 
     def e_band(s):

@@ -60,10 +60,22 @@ class RankResult:
     """The parent structure as screened."""
     params: object
     """The ParameterSet used."""
+    alternative: ParentEnergetics | None = None
+    """The parent's energetics with the other set of universal hoppings (None when parameters set their own)."""
+    alternative_harrison_set: str = ""
+    """Name of that other set."""
     screened_atoms: int = 0
     """Atoms in the cell the screen worked on (the input's standardised primitive cell)."""
     notes: tuple[str, ...] = ()
     """Candidate families that could not be built, and similar remarks."""
+
+    def _ensembles(self):
+        """(Harrison set, members) of the closure's range: the parameters' own set first, then the other one."""
+        out = [(getattr(self.params, "harrison_set", "1980"), self.parent.ensemble)]
+        if self.alternative is not None:
+            ens = self.alternative.ensemble
+            out.append((self.alternative_harrison_set, ens[len(ens) // 2:len(ens) // 2 + 1]))
+        return out
 
     @property
     def fermi_level_eV(self) -> float:
@@ -115,8 +127,8 @@ class RankResult:
                 "kind": self.parent.closure,
                 "bulk_modulus_GPa": self.parent.bulk_modulus_GPa,
                 "bulk_modulus_source": self.parent.bulk_modulus_source,
-                "members": [{"label": lab, "pair_repulsion_eV": a, "pair_exponent": m}
-                            for lab, a, m in self.parent.ensemble],
+                "members": [{"label": lab, "hoppings": f"Harrison {hs}", "pair_repulsion_eV": a, "pair_exponent": m}
+                            for hs, ens in self._ensembles() for lab, a, m in ens],
             },
             "screened_cell_atoms": self.screened_atoms,
             "notes": list(self.notes),
@@ -230,6 +242,8 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         safety=safety_note(crystal),
         parent_structure=crystal,
         params=params,
+        alternative=context.alternative_energetics,
+        alternative_harrison_set=getattr(context.alternative_params, "harrison_set", ""),
         screened_atoms=context.crystal.n_atoms,
         notes=tuple(notes),
     )
@@ -246,7 +260,12 @@ def verdict_summary(result: RankResult) -> str:
         if not best.converged:
             why = " (not k-converged)"
         elif best.distorting_fraction < 1:
-            why = " (gain not robust over the closure's range)"
+            thr = result.settings.threshold_meV_per_atom
+            own = np.asarray(best.member_delta_E_meV_per_atom[:len(result.parent.ensemble)])
+            if np.all(own < -thr):
+                why = f" (gain vanishes with the other universal hopping set, Harrison {result.alternative_harrison_set})"
+            else:
+                why = " (gain depends on how stiff the lattice is: not every bulk modulus in ±25 % gives it)"
         else:
             why = " (gain below the threshold)"
     return (f"{result.formula} ({result.space_group_symbol}): {word}{why} — best {best.generator} "
