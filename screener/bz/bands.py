@@ -29,6 +29,33 @@ class BandStructure:
     ground_state: object
     """integrate.BandEnergyResult on the default mesh (Fermi level, band energy, gap)."""
 
+    @property
+    def gap_eV(self) -> float:
+        """Band gap from the band edges over the mesh *and* the route through the special points, eV.
+
+        A mesh alone only bounds the gap from above (the true valence-band top lies at or above the mesh's, the
+        conduction-band bottom at or below); adding the route catches edges at special points that the mesh
+        misses (graphene's bands touch at K). 0 for a metal or a partly filled band; NaN when every band is filled.
+        """
+        from screener.bz.common import _filled_bands
+
+        g = self.ground_state
+        nf = _filled_bands(g.n_electrons, g.spin_degeneracy)
+        nb = self.energies_eV.shape[1]
+        if nf is not None and nf >= nb:
+            return float("nan")
+        if nf is None or nf <= 0 or g.gap_eV <= 0:
+            return 0.0
+        e_mesh = np.asarray(g.eigenvalues_eV)
+        vbm = max(float(e_mesh[:, nf - 1].max()), float(self.energies_eV[:, nf - 1].max()))
+        cbm = min(float(e_mesh[:, nf].min()), float(self.energies_eV[:, nf].min()))
+        return max(cbm - vbm, 0.0)
+
+    @property
+    def all_bands_filled(self) -> bool:
+        """True when the electrons fill every band of the basis: an insulator whose gap lies beyond the model."""
+        return bool(np.isnan(self.gap_eV))
+
 
 def orbital_groups(model) -> tuple[tuple[str, ...], np.ndarray]:
     """Shell letters of the basis ('s', 'p', 'd', in order of appearance) and (norb, ng) 0/1 membership."""

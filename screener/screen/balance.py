@@ -82,6 +82,14 @@ class CandidateResult:
     """The optimum structure."""
     bonds: object = field(repr=False, default=None)
     """model.BondList of the optimum: the parent's bonds, followed to the displaced atoms."""
+    curve_amplitude_A: tuple[float, ...] = ()
+    """Amplitudes of ΔE(λ) on the mesh the verdict comes from, Å."""
+    curve_delta_E_meV_per_atom: tuple[float, ...] = ()
+    """Nominal ΔE(λ) on that mesh, meV/atom."""
+    curve_range_meV_per_atom: tuple[tuple[float, ...], tuple[float, ...]] = ((), ())
+    """(lowest, highest) ΔE(λ) over the members of the verdict's range on that mesh, meV/atom."""
+    curve_kmesh: tuple[int, int, int] = (0, 0, 0)
+    """k-mesh of that curve (supercell reciprocal basis)."""
 
 
 # --------------------------------------------------------------------------------------------- machinery
@@ -315,8 +323,9 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         xs, fine = lams, coarse_members
         if lam_ref > 0:
             note.append("closure range evaluated on the scan mesh (relaxed cell)")
+    nominal_row = len(parent.ensemble) // 2
     member_dE = np.minimum([_parabola_minimum(xs, row) for row in fine], 0.0)
-    member_dE[len(parent.ensemble) // 2] = delta_total  # the nominal member, polished above
+    member_dE[nominal_row] = delta_total  # the nominal member, polished above
     d_lo, d_hi = float(member_dE.min()), float(member_dE.max())
     distorting = float(np.mean(member_dE < -thr))
     if np.all(member_dE > -tol):
@@ -364,6 +373,10 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         distorting_fraction=distorting,
         member_delta_E_meV_per_atom=tuple(float(x) for x in member_dE),
         kmesh_error_meV_per_atom=float(residual),
+        curve_amplitude_A=tuple(float(x) for x in xs),
+        curve_delta_E_meV_per_atom=tuple(float(x) for x in fine[nominal_row]),
+        curve_range_meV_per_atom=(tuple(float(x) for x in fine.min(axis=0)), tuple(float(x) for x in fine.max(axis=0))),
+        curve_kmesh=tuple(int(x) for x in (mesh if xs is not lams else coarse_mesh)),
         cell_strain=float(strain_opt),
         structure=crystal_opt,
         bonds=type(ev.bonds)(ev.bonds.i, ev.bonds.j, follow_bonds(ev.bonds.i, ev.bonds.j, ev.bonds.image, shift)),

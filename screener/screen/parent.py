@@ -226,6 +226,9 @@ def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet 
     coordination = len(shells.i) / crystal.n_atoms
     nn = float(shells.distance_A.min()) if len(shells.i) else float("nan")
     b_gpa, b_source = bulk_modulus_for(crystal, settings.bulk_modulus_GPa, nn, coordination)
+    if not all(model.periodic):
+        # a chain or a layer in vacuum has no bulk modulus of its own: the cell volume is mostly vacuum
+        b_gpa, b_source = None, "a chain or layer in vacuum has no bulk modulus"
     if closure == "bulk-modulus" and b_gpa is not None and slope > 0:
         try:
             for label, f in (("B − 25 %", 1 - BULK_MODULUS_SPREAD), ("B", 1.0), ("B + 25 %", 1 + BULK_MODULUS_SPREAD)):

@@ -264,10 +264,13 @@ def verdict_summary(result: RankResult) -> str:
             own = np.asarray(best.member_delta_E_meV_per_atom[:len(result.parent.ensemble)])
             if np.all(own < -thr):
                 why = f" (gain vanishes with the other universal hopping set, Harrison {result.alternative_harrison_set})"
-            else:
+            elif result.parent.closure == "bulk-modulus":
                 why = " (gain depends on how stiff the lattice is: not every bulk modulus in ±25 % gives it)"
+            else:
+                why = " (gain depends on how stiff the lattice is: not every repulsion exponent m ± 1 gives it)"
         else:
             why = " (gain below the threshold)"
     return (f"{result.formula} ({result.space_group_symbol}): {word}{why} — best {best.generator} "
-            f"q={best.q_label} → {best.space_group_symbol}, ΔE = {best.delta_E_meV_per_atom:.2f} meV/atom, "
+            f"q={best.q_label} → {best.space_group_symbol}, ΔE = {best.delta_E_meV_per_atom:.2f} meV/atom "
+            f"(range {best.delta_E_range_meV_per_atom[0]:.1f} … {best.delta_E_range_meV_per_atom[1]:.1f}), "
             f"gap {best.gap_eV:.2f} eV")

@@ -105,11 +105,16 @@ def cmd_info(args) -> int:
 _BANDS_SHOWN = 12
 
 
-def _bands_text(args, crystal, model, path, energies, result, params_note) -> str:
+def _bands_text(args, crystal, model, path, energies, result, params_note, bs) -> str:
     import numpy as np
 
     ef = result.fermi_level_eV
-    gap = f"{result.gap_eV:.4f} eV" if result.gap_eV > 0 else "0 (metal or partly filled band)"
+    if bs.all_bands_filled:
+        gap = "none in the basis: every band is filled (an insulator; its gap lies beyond the model's orbitals)"
+    elif bs.gap_eV > 0:
+        gap = f"{bs.gap_eV:.4f} eV (band edges over the mesh and the route)"
+    else:
+        gap = "0 (metal or partly filled band)"
     route = " | ".join("–".join(lab for lab in piece) for piece in _path_pieces(path))
     out = [
         f"file              {args.file}",
@@ -180,7 +185,8 @@ def cmd_bands(args) -> int:
             "parameters": params_note,
             "fermi_level_eV": result.fermi_level_eV,
             "band_energy_eV": result.band_energy_eV,
-            "gap_eV": result.gap_eV,
+            "gap_eV": None if bs.all_bands_filled else bs.gap_eV,
+            "all_bands_filled": bs.all_bands_filled,
             "n_electrons": model.n_electrons,
             "mesh": list(result.mesh),
             "n_kpoints_irreducible": result.n_kpoints_irreducible,
@@ -194,7 +200,7 @@ def cmd_bands(args) -> int:
             **({"plot": str(args.plot)} if args.plot else {}),
         })
         return 0
-    print(_bands_text(args, crystal, model, path, energies, result, params_note))
+    print(_bands_text(args, crystal, model, path, energies, result, params_note, bs))
     if args.plot:
         print(f"\nwrote {args.plot}")
     return 0

@@ -188,7 +188,7 @@ def plot_bands(path, energies_eV, fermi_level_eV: float, out_png, *, character=N
         inside = (ed >= lo) & (ed <= hi)
         top = float(total[inside].max()) if inside.any() else float(total.max())
         axd.set_xlim(0, 1.05 * top if top > 0 else 1.0)
-        axd.set_xlabel("DOS (states/eV/cell)")
+        axd.set_xlabel("DOS (states/eV/atom)")
         axd.tick_params(labelleft=False)
         if projected is not None:
             axd.legend(loc="lower left", bbox_to_anchor=(0.0, 1.0), fontsize=7, frameon=False, ncol=1)
@@ -205,13 +205,20 @@ def _curve_fields(curve, index: int):
     else:
         def get(name):
             return getattr(curve, name, None)
-    if get("scan_amplitude_A") is not None:  # a compare.CandidateResult
+    band_range = None
+    if get("scan_amplitude_A") is not None:  # a balance.CandidateResult
         gen, q = get("generator"), get("q_label")
         label = get("label") or " ".join(str(s) for s in (gen, f"q={q}" if q else None) if s) or f"candidate {index}"
         amp = get("scan_amplitude_A")
         total = get("scan_delta_E_meV_per_atom")
         band = get("scan_delta_E_band_meV_per_atom")
         elastic = get("scan_delta_E_elastic_meV_per_atom")
+        if get("curve_amplitude_A"):
+            # the curve on the mesh the optimum and verdict come from, with the verdict's range as a band
+            amp, total = get("curve_amplitude_A"), get("curve_delta_E_meV_per_atom")
+            band = elastic = None
+            lo, hi = get("curve_range_meV_per_atom")
+            band_range = (np.asarray(lo, dtype=float), np.asarray(hi, dtype=float))
         opt = (get("amplitude_A"), get("delta_E_meV_per_atom"))
         opt = None if any(v is None for v in opt) else tuple(float(v) for v in opt)
     else:
@@ -239,7 +246,9 @@ def _curve_fields(curve, index: int):
         arrays.append(arr)
     order = np.argsort(amp, kind="stable")
     arrays = [None if a is None else a[order] for a in arrays]
-    return str(label), amp[order], arrays[0], arrays[1], arrays[2], opt
+    if band_range is not None:
+        band_range = (band_range[0][order], band_range[1][order])
+    return str(label), amp[order], arrays[0], arrays[1], arrays[2], opt, band_range
 
 
 def plot_energy_curves(curves, out_png, title=None, *, show_parts=None) -> Path:
@@ -248,7 +257,8 @@ def plot_energy_curves(curves, out_png, title=None, *, show_parts=None) -> Path:
     Parameters
     ----------
     curves : sequence
-        ``compare.CandidateResult`` objects (their coarse scan and optimum are drawn) or mappings with
+        ``balance.CandidateResult`` objects (their ΔE(λ) on the verdict's mesh, the range of the verdict's members
+        as a shaded band, and the optimum are drawn; the coarse scan where no final curve exists) or mappings with
         ``label``, ``amplitude_A``, ``delta_E_meV_per_atom`` and optionally ``band_meV_per_atom``,
         ``elastic_meV_per_atom``.
     out_png : path
@@ -270,9 +280,11 @@ def plot_energy_curves(curves, out_png, title=None, *, show_parts=None) -> Path:
 
     cmap = colormaps["tab10"] if len(data) <= 10 else colormaps["tab20"]
     any_parts = False
-    for i, (label, amp, total, band, elastic, opt) in enumerate(data):
+    for i, (label, amp, total, band, elastic, opt, band_range) in enumerate(data):
         colour = cmap(i % cmap.N)
         ax.plot(amp, total, "-o", color=colour, ms=3.5, lw=1.6, label=label)
+        if band_range is not None:
+            ax.fill_between(amp, band_range[0], band_range[1], color=colour, alpha=0.15, lw=0)
         if show_parts and band is not None:
             ax.plot(amp, band, ":", color=colour, lw=1.2)
             any_parts = True
@@ -291,6 +303,10 @@ def plot_energy_curves(curves, out_png, title=None, *, show_parts=None) -> Path:
                     Line2D([], [], color="0.3", ls="-.", label="elastic part")]
     if any(d[5] is not None for d in data):
         handles.append(Line2D([], [], color="0.3", marker="*", ls="", ms=10, label="optimum"))
+    if any(d[6] is not None for d in data):
+        from matplotlib.patches import Patch
+
+        handles.append(Patch(color="0.3", alpha=0.15, label="range of the verdict's members"))
     ax.legend(handles=handles, fontsize=8, loc="best", framealpha=0.9)
     if title:
         ax.set_title(title)
@@ -312,6 +328,12 @@ def plot_band_structure(bs: BandStructure, out_png, title: str | None = None) ->
     dos = density_of_states(eig_ir, result.kmesh, np.linspace(lo, hi, 401), method="tetrahedron",
                             weights_projected=proj, spin_degeneracy=bs.model.spin_degeneracy,
                             reciprocal_A=bs.crystal.reciprocal_A)
+    # per atom, so a parent and its supercell candidates show comparable panels
+    from dataclasses import replace
+
+    n = bs.crystal.n_atoms
+    dos = replace(dos, dos_per_eV=dos.dos_per_eV / n, states_below=dos.states_below / n,
+                  projected_per_eV=None if dos.projected_per_eV is None else dos.projected_per_eV / n)
     if title is None:
         title = f"{bs.crystal.formula} ({bs.path.lattice_type}), E_F = {result.fermi_level_eV:.3f} eV"
     return plot_bands(bs.path, bs.energies_eV, result.fermi_level_eV, out_png, character=bs.character,

@@ -106,3 +106,32 @@ def test_bad_kpoints_is_one_line_error(tmp_path, capsys, bad):
     assert main(["bands", PO_SC, "--params", _params(tmp_path), "--kpoints", bad]) == 2
     err = capsys.readouterr().err
     assert "--kpoints" in err and repr(bad) in err and len(err.strip().splitlines()) == 1
+
+
+def test_graphene_gap_comes_from_the_band_edges_at_K():
+    # Wallace, Phys. Rev. 71, 622 (1947): the π bands of a graphite layer touch at the zone corner K, gap 0;
+    # a Γ-centred mesh that misses K shows a spurious gap, the route through K must close it
+    from screener.bz.bands import band_structure
+    from screener.structure.crystal import Crystal
+
+    a = 2.46  # graphene lattice constant, Å (from memory)
+    lat = np.array([[a, 0, 0], [-a / 2, a * np.sqrt(3) / 2, 0], [0, 0, 12.0]])
+    graphene = Crystal(lat, [[1 / 3, 2 / 3, 0.5], [2 / 3, 1 / 3, 0.5]], ["C", "C"])
+    bs = band_structure(graphene)
+    assert bs.gap_eV == pytest.approx(0.0, abs=1e-6)
+    assert not bs.all_bands_filled
+
+
+def test_completely_filled_bands_are_an_insulator_not_a_metal(capsys, tmp_path):
+    # solid argon, fcc, a = 5.26 Å (from memory): a closed 3s²3p⁶ shell fills every band of an s,p basis
+    from screener.structure.crystal import Crystal
+    from screener.structure.formats import write_structure
+
+    fcc = np.array([[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]]) * 5.26
+    path = tmp_path / "Ar_fcc.json"
+    write_structure(Crystal(fcc, [[0, 0, 0]], ["Ar"]), path)
+    assert main(["bands", str(path), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["all_bands_filled"] is True and data["gap_eV"] is None
+    assert main(["bands", str(path)]) == 0
+    assert "every band is filled (an insulator" in capsys.readouterr().out
