@@ -8,6 +8,7 @@ import numpy as np
 
 from screener.structure.crystal import Crystal
 from screener.structure.symmetry import SYMPREC_A
+from screener.tb.model import single_blas_thread
 
 
 @dataclass(frozen=True, eq=False)
@@ -87,8 +88,9 @@ def band_structure(crystal: Crystal, params=None, *, kpoints=None, symprec: floa
         params = default_parameters(list(dict.fromkeys(crystal.species)))
     model = build_model(crystal, params, bonds=bonds)
     path = band_path(crystal, symprec=symprec, kpoints=kpoints, periodic=model.periodic)
-    ground = solve_on_mesh(model, symprec=symprec)
-    shells, member = orbital_groups(model)
-    energies, character = shell_weights(model, path.kfrac, member)
+    with single_blas_thread():
+        ground = solve_on_mesh(model, symprec=symprec)
+        shells, member = orbital_groups(model)
+        energies, character = shell_weights(model, path.kfrac, member)
     return BandStructure(crystal, model, path, energies, shells, character, ground)
 

@@ -18,6 +18,7 @@ from screener.screen.generators import default_candidates
 from screener.screen.parent import build_parent
 from screener.structure.crystal import Crystal
 from screener.structure.elements import HAZARDOUS
+from screener.tb.model import single_blas_thread
 
 CAUTION = (
     "A screen, not a substitute for DFT or experiment: tight binding with universal parameters is qualitative; "
@@ -223,8 +224,10 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
                disable=not progress, leave=False)
     try:
-        parent = context.energetics
-        results = [evaluate_family(f, context, progress=bar) for f in families]
+        with single_blas_thread():
+            parent = context.energetics
+            results = [evaluate_family(f, context, progress=bar) for f in families]
+            alternative = context.alternative_energetics
     finally:
         bar.close()
     results = [_in_input_setting(c, context) for c in results]
@@ -242,7 +245,7 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         safety=safety_note(crystal),
         parent_structure=crystal,
         params=params,
-        alternative=context.alternative_energetics,
+        alternative=alternative,
         alternative_harrison_set=getattr(context.alternative_params, "harrison_set", ""),
         screened_atoms=context.crystal.n_atoms,
         notes=tuple(notes),
