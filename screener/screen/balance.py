@@ -239,17 +239,22 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     thr, tol = settings.threshold_meV_per_atom, settings.stable_tolerance_meV_per_atom
     note = []
 
-    def member_totals(m, upto=np.inf):
+    def member_totals(m, upto=np.inf, alt_near=None):
         """(n_members, n_amplitudes) ΔE of every closure member along the scan amplitudes on mesh m, meV/atom:
-        the closure's range with the parent's hoppings, then (if any) with the other universal set."""
+        the closure's range with the parent's hoppings, then (if any) with the other universal set. With
+        ``alt_near`` (amplitude indices) the other set is only evaluated there (NaN elsewhere)."""
         xs = lams[lams <= upto + 1e-12]
         rows = []
         for evaluator, energy in ((ev, e_at), (ev_alt, e_alt)):
             if evaluator is None:
                 continue
-            b = np.array([energy(x, m)[0] for x in xs])
-            el = np.array([evaluator.member_elastic(x, energy(x, m)[3]) for x in xs])  # (n_amplitudes, n_members)
-            rows.append(((b - b[0])[None, :] + (el - el[0]).T) * 1e3)
+            use = np.arange(len(xs)) if evaluator is ev or alt_near is None else np.array(sorted(alt_near))
+            use = use[use < len(xs)]
+            b = np.array([energy(xs[i], m)[0] for i in use])
+            el = np.array([evaluator.member_elastic(xs[i], energy(xs[i], m)[3]) for i in use])
+            block = np.full((el.shape[1], len(xs)), np.nan)
+            block[:, use] = ((b - b[0])[None, :] + (el - el[0]).T) * 1e3
+            rows.append(block)
         return xs, np.concatenate(rows)
 
     _, coarse_members = member_totals(mesh)
@@ -318,7 +323,13 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
 
     # the closure's uncertainty range, on the same final mesh (amplitudes up to a little beyond the optimum)
     if lam_ref > 0 and family.strain_axis is None:
-        xs, fine = member_totals(mesh, upto=min(lam_max, 2 * lam_ref + 2 * step))
+        # the other hopping set only around its own coarse optimum (three amplitudes and λ = 0)
+        n_own = len(parent.ensemble)
+        near = {0}
+        for row in coarse_members[n_own:]:
+            j = int(np.argmin(row))
+            near |= {max(j - 1, 0), j, j + 1}
+        xs, fine = member_totals(mesh, upto=min(lam_max, 2 * lam_ref + 2 * step), alt_near=near)
     else:
         xs, fine = lams, coarse_members
         if lam_ref > 0:
@@ -375,7 +386,8 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         kmesh_error_meV_per_atom=float(residual),
         curve_amplitude_A=tuple(float(x) for x in xs),
         curve_delta_E_meV_per_atom=tuple(float(x) for x in fine[nominal_row]),
-        curve_range_meV_per_atom=(tuple(float(x) for x in fine.min(axis=0)), tuple(float(x) for x in fine.max(axis=0))),
+        curve_range_meV_per_atom=(tuple(float(x) for x in np.nanmin(fine, axis=0)),
+                                  tuple(float(x) for x in np.nanmax(fine, axis=0))),
         curve_kmesh=tuple(int(x) for x in (mesh if xs is not lams else coarse_mesh)),
         cell_strain=float(strain_opt),
         structure=crystal_opt,
@@ -384,10 +396,12 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
 
 
 def _parabola_minimum(x: np.ndarray, y: np.ndarray) -> float:
-    """Lowest value of y on the grid x, refined by the parabola through the three points around it."""
-    j = int(np.argmin(y))
+    """Lowest value of y on the grid x (NaN = not evaluated), refined by the parabola through the three points
+    around it."""
+    y = np.asarray(y, dtype=float)
+    j = int(np.nanargmin(y))
     best = float(y[j])
-    if 0 < j < len(y) - 1:
+    if 0 < j < len(y) - 1 and np.isfinite(y[j - 1]) and np.isfinite(y[j + 1]):
         (x0, x1, x2), (y0, y1, y2) = x[j - 1:j + 2], y[j - 1:j + 2]
         d = (x0 - x1) * (x0 - x2) * (x1 - x2)
         a = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / d
