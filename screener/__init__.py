@@ -1,4 +1,7 @@
-"""screener: screen candidate crystal phases for Peierls-type bond-alternation instabilities."""
+"""screener: screen candidate crystal phases for Peierls-type bond-alternation instabilities.
+
+The public names are imported on first use, so ``screener --help`` does not load the numerical stack.
+"""
 
 from screener.errors import (
     ConvergenceError,
@@ -8,13 +11,19 @@ from screener.errors import (
     StructureError,
     SymmetryError,
 )
-from screener.structure.crystal import Crystal
-from screener.structure.formats import read_structure, write_structure
-from screener.tb.model import build_model
-from screener.tb.param_file import load_parameters
-from screener.tb.params import default_parameters
 
 __version__ = "0.1.0"
+
+#: public name -> module that defines it
+_LAZY = {
+    "Crystal": "screener.structure.crystal",
+    "read_structure": "screener.structure.formats",
+    "write_structure": "screener.structure.formats",
+    "build_model": "screener.tb.model",
+    "load_parameters": "screener.tb.param_file",
+    "default_parameters": "screener.tb.params",
+    "rank": "screener.screen.rank",
+}
 
 __all__ = [
     "Crystal",
@@ -27,6 +36,21 @@ __all__ = [
     "build_model",
     "default_parameters",
     "load_parameters",
+    "rank",
     "read_structure",
     "write_structure",
 ]
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
+
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'screener' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))

@@ -5,7 +5,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 
 @dataclass(frozen=True)
@@ -36,6 +35,11 @@ class NeighbourShell:
     """Average number of neighbours per atom in this shell."""
 
 
+#: Up to this many (atom, image) distances the search is done directly; beyond it with a KD-tree (scipy), which is
+#: slow to import and to build for a handful of atoms.
+BRUTE_FORCE_PAIRS = 200_000
+
+
 def find_neighbours(lattice_A, frac, cutoff_A: float, include_zero: bool = False) -> NeighbourList:
     """Periodic neighbour search with a KD-tree over the images needed to reach ``cutoff_A``."""
     lattice_A = np.asarray(lattice_A, dtype=float)
@@ -50,10 +54,17 @@ def find_neighbours(lattice_A, frac, cutoff_A: float, include_zero: bool = False
     cart = frac @ lattice_A
     img_cart = images @ lattice_A
     all_pos = (cart[None, :, :] + img_cart[:, None, :]).reshape(-1, 3)
-    tree = cKDTree(all_pos)
-    hits = tree.query_ball_point(cart, r=cutoff_A + 1e-9)
-    ii = np.repeat(np.arange(n), [len(h) for h in hits])
-    flat = np.fromiter((x for h in hits for x in h), dtype=int, count=len(ii))
+    if n * len(all_pos) <= BRUTE_FORCE_PAIRS:
+        # small cells: every distance at once is quicker than loading and building a tree
+        d2 = np.sum((all_pos[None, :, :] - cart[:, None, :]) ** 2, axis=2)
+        ii, flat = np.nonzero(d2 <= (cutoff_A + 1e-9) ** 2)
+    else:
+        from scipy.spatial import cKDTree
+
+        tree = cKDTree(all_pos)
+        hits = tree.query_ball_point(cart, r=cutoff_A + 1e-9)
+        ii = np.repeat(np.arange(n), [len(h) for h in hits])
+        flat = np.fromiter((x for h in hits for x in h), dtype=int, count=len(ii))
     img_idx, jj = np.divmod(flat, n)
     image = images[img_idx]
     vec = all_pos[flat] - cart[ii]
