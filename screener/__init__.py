@@ -23,6 +23,8 @@ _LAZY = {
     "load_parameters": "screener.tb.param_file",
     "default_parameters": "screener.tb.params",
     "rank": "screener.screen.rank",
+    "batch": "screener.run.batch",
+    "load_store": "screener.run.store",
 }
 
 __all__ = [
@@ -33,9 +35,11 @@ __all__ = [
     "ScreenerError",
     "StructureError",
     "SymmetryError",
+    "batch",
     "build_model",
     "default_parameters",
     "load_parameters",
+    "load_store",
     "rank",
     "read_structure",
     "write_structure",

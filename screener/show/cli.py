@@ -268,6 +268,47 @@ def cmd_rank(args) -> int:
     return 0
 
 
+# ---------------------------------------------------------------------------------------------- batch
+def cmd_batch(args) -> int:
+    """Rank many structures into one store; a summary line per run, the table as CSV on request."""
+    from screener.run.batch import run_batch
+    from screener.run.store import load_store
+
+    if args.csv:
+        _check_output_file(args.csv, "--csv")
+    if args.params:
+        from pathlib import Path
+
+        if not Path(args.params).is_file():
+            raise ScreenerError(f"--params {args.params}: no such file")
+    summary = run_batch(args.inputs, store=args.store, workers=args.workers, dask=args.dask,
+                        progress=not args.quiet, params=args.params, generators=args.generator,
+                        extra_q=[_parse_q(q) for q in (args.q or [])], settings=_screen_settings(args),
+                        relax_cell=args.relax_cell)
+    line = (f"batch: {summary.ranked} ranked, {summary.failed} failed, {summary.skipped} skipped "
+            f"(already in {summary.store} with these settings) in {summary.seconds:.1f} s")
+    if summary.ranked == 0 and summary.failed == 0:
+        line += " — nothing to do"
+    print(line)
+    if args.csv:
+        load_store(args.store).to_csv(args.csv, index=False)
+        print(f"wrote {args.csv}")
+    if summary.interrupted:
+        print("screener batch: stopped before the end; run the same command again to finish", file=sys.stderr)
+        return 130
+    return 0
+
+
+def _check_output_file(path, option: str) -> None:
+    from pathlib import Path
+
+    p = Path(path)
+    if p.is_dir():
+        raise ScreenerError(f"{option} {p} is a folder; give a file name")
+    if not p.parent.exists():
+        raise ScreenerError(f"{option} {p}: the folder {p.parent} does not exist")
+
+
 # ---------------------------------------------------------------------------------------------- demo
 def cmd_demo(args) -> int:
     """Rank every bundled (invented) demo structure and write a report folder."""
@@ -275,6 +316,25 @@ def cmd_demo(args) -> int:
 
     run_demo(args.out, progress=not args.quiet)
     return 0
+
+
+def _add_rank_options(p: argparse.ArgumentParser) -> None:
+    """Options of how a structure is ranked (shared by rank and batch)."""
+    p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
+    p.add_argument("--generator", action="append", help="candidate generator(s) to run (repeatable)")
+    p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
+    p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
+    p.add_argument("--bulk-modulus-GPa", type=float,
+                   help="the parent's bulk modulus in GPa (default: bundled table of measured values, else an estimate)")
+    p.add_argument("--closure", choices=["bulk-modulus", "equilibrium"], default="bulk-modulus",
+                   help="elastic closure: fitted to equilibrium and the bulk modulus (default), or to equilibrium "
+                        "alone with the fixed --pair-exponent")
+    p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
+    p.add_argument("--threshold-meV", type=float, default=1.0,
+                   help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
+    p.add_argument("--relax-cell", action="store_true",
+                   help="relax the rhombohedral angle together with the rhombohedral split (slower)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -300,25 +360,21 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("rank", help="rank candidate bond-alternating distortions by energy gain")
     _add_structure_args(p)
-    p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--csv", help="also write the ranked table to this CSV file")
-    p.add_argument("--generator", action="append", help="candidate generator(s) to run (repeatable)")
-    p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
-    p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
     p.add_argument("--write-structures", help="write each optimum as CIF into this folder")
-    p.add_argument("--bulk-modulus-GPa", type=float,
-                   help="the parent's bulk modulus in GPa (default: bundled table of measured values, else an estimate)")
-    p.add_argument("--closure", choices=["bulk-modulus", "equilibrium"], default="bulk-modulus",
-                   help="elastic closure: fitted to equilibrium and the bulk modulus (default), or to equilibrium "
-                        "alone with the fixed --pair-exponent")
-    p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
-    p.add_argument("--threshold-meV", type=float, default=1.0,
-                   help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
-    p.add_argument("--relax-cell", action="store_true",
-                   help="relax the rhombohedral angle together with the rhombohedral split (slower)")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    _add_rank_options(p)
     p.set_defaults(func=cmd_rank)
+
+    p = sub.add_parser("batch", help="rank many structures into one resumable result store (SQLite)")
+    p.add_argument("inputs", nargs="+", help="structure files, folders (searched recursively) or .txt lists of paths")
+    p.add_argument("--store", default="results.sqlite", help="result store (SQLite file, default results.sqlite)")
+    p.add_argument("--workers", type=int, help="local worker processes (default: the number of cores)")
+    p.add_argument("--dask", metavar="ADDRESS", help="send the work to this Dask scheduler (screener[cluster] extra)")
+    p.add_argument("--csv", help="write one row per stored structure to this CSV file")
+    p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
+    _add_rank_options(p)
+    p.set_defaults(func=cmd_batch)
 
     p = sub.add_parser("demo", help="rank every bundled invented demo structure and write a report folder")
     p.add_argument("--out", default="screener-report", help="report folder (default ./screener-report)")

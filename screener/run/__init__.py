@@ -1,0 +1,1 @@
+"""Running many structures: the batch runner and its SQLite result store."""
