@@ -115,6 +115,7 @@ class RankResult:
             "formula": self.formula,
             "space_group": {"symbol": self.space_group_symbol, "number": self.space_group_number},
             "n_atoms": self.n_atoms,
+            "volume_per_atom_A3": self.parent_structure.volume_A3 / self.parent_structure.n_atoms,
             "valence_electrons_per_cell": self.valence_electrons_per_cell,
             "fermi_level_eV": self.fermi_level_eV,
             "parent": {
@@ -237,7 +238,8 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
         formula=crystal.formula,
         space_group_symbol=sym.symbol,
         space_group_number=sym.number,
-        valence_electrons_per_cell=parent.valence_electrons_per_cell,
+        # per cell of the input as given (the screen itself works on the primitive cell)
+        valence_electrons_per_cell=parent.valence_electrons_per_cell * crystal.n_atoms / context.crystal.n_atoms,
         n_atoms=crystal.n_atoms,
         parent=parent,
         candidates=tuple(results),

@@ -293,6 +293,10 @@ def cmd_batch(args) -> int:
     if args.csv:
         load_store(args.store).to_csv(args.csv, index=False)
         print(f"wrote {args.csv}")
+    if args.report:
+        from screener.show.batch_report import write_batch_report
+
+        print(f"report written to {write_batch_report(args.store, args.report, args.descriptor)}/")
     if summary.interrupted:
         print("screener batch: stopped before the end; run the same command again to finish", file=sys.stderr)
         return 130
@@ -372,6 +376,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--workers", type=int, help="local worker processes (default: the number of cores)")
     p.add_argument("--dask", metavar="ADDRESS", help="send the work to this Dask scheduler (screener[cluster] extra)")
     p.add_argument("--csv", help="write one row per stored structure to this CSV file")
+    p.add_argument("--report", metavar="DIR", help="write a report folder: counts, ΔE histogram, most unstable, "
+                                                   "ΔE against a descriptor")
+    p.add_argument("--descriptor", choices=["volume-per-atom", "electrons-per-atom"], default="volume-per-atom",
+                   help="descriptor of the report's ΔE plot (default volume-per-atom)")
     p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
     _add_rank_options(p)
     p.set_defaults(func=cmd_batch)

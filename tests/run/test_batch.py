@@ -131,3 +131,23 @@ def test_dask_cluster_fills_the_same_store_as_local_workers(tmp_path):
     assert list(a.index) == list(b.index) and list(a.status) == list(b.status)
     assert list(a.verdict.fillna("")) == list(b.verdict.fillna(""))
     assert (a.delta_E_meV_per_atom - b.delta_E_meV_per_atom).abs().max() < 1e-9
+
+
+def test_batch_command_writes_csv_and_report(tmp_path, capsys):
+    from screener.show.cli import main
+
+    folder = _folder(tmp_path, GOOD[:2], bad=True)
+    store, csv, rep = tmp_path / "s.sqlite", tmp_path / "out.csv", tmp_path / "rep"
+    args = ["batch", str(folder), "--store", str(store), "--workers", "1", "--kspacing", "0.35", "--quiet"]
+    assert main(args + ["--csv", str(csv), "--report", str(rep)]) == 0
+    out = capsys.readouterr().out
+    assert "2 ranked, 2 failed, 0 skipped" in out
+    assert csv.read_text().count("\n") == 5  # header + 4 structures
+    summary = (rep / "summary.txt").read_text()
+    assert "structures: 4 (2 ranked, 2 errors)" in summary and "no data block has a cell" in summary
+    assert (rep / "delta_E_histogram.png").stat().st_size > 0
+    assert (rep / "delta_E_vs_volume_per_atom.png").stat().st_size > 0
+    assert main(args) == 0
+    assert "nothing to do" in capsys.readouterr().out
+    assert main(["batch", str(folder), "--store", str(store), "--csv", str(tmp_path)]) == 2
+    assert "is a folder" in capsys.readouterr().err
