@@ -197,7 +197,9 @@ class Crystal:
     def _search_shortest_contact(self) -> tuple[float, int, int]:
         n = self.n_atoms
         # generous cutoff: the longest cell diagonal, capped; shells guarantee at least one contact
-        trial = (self.volume_A3 / n) ** (1 / 3) * 1.5 + 1e-6
+        # an atom's own image along the shortest lattice vector bounds the shortest contact from above
+        shortest_vector = float(np.linalg.norm(self.lattice_A, axis=1).min())
+        trial = min((self.volume_A3 / n) ** (1 / 3) * 1.5, shortest_vector * 1.0001) + 1e-6
         for _ in range(8):
             nl = find_neighbours(self.lattice_A, self.frac, trial, include_zero=True)
             if len(nl.distance_A):

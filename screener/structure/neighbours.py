@@ -6,6 +6,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from screener.errors import StructureError
+
 
 @dataclass(frozen=True)
 class NeighbourList:
@@ -35,6 +37,8 @@ class NeighbourShell:
     """Average number of neighbours per atom in this shell."""
 
 
+#: Largest number of (image, atom) sites a neighbour search may build (about 100 MB of positions).
+MAX_IMAGE_SITES = 4_000_000
 #: Up to this many (atom, image) distances the search is done directly; beyond it with a KD-tree (scipy), which is
 #: slow to import and to build for a handful of atoms.
 BRUTE_FORCE_PAIRS = 200_000
@@ -48,7 +52,17 @@ def find_neighbours(lattice_A, frac, cutoff_A: float, include_zero: bool = False
     n = len(frac)
     rec = np.linalg.inv(lattice_A).T
     spacing = 1.0 / np.linalg.norm(rec, axis=1)  # interplanar spacings, Å
-    reach = np.ceil(cutoff_A / spacing).astype(int)
+    if not (np.isfinite(cutoff_A) and cutoff_A > 0) or not np.all(np.isfinite(spacing)):
+        raise StructureError(f"neighbour search needs a finite positive cutoff and cell, got cutoff {cutoff_A!r} Å")
+    reach = np.ceil(cutoff_A / spacing)
+    n_images = float(np.prod(2 * reach + 1))
+    if n_images * max(n, 1) > MAX_IMAGE_SITES:
+        raise StructureError(
+            f"the neighbour search out to {cutoff_A:.4g} Å would need {n_images:.3g} periodic images of the cell "
+            f"(interplanar spacings {np.round(spacing, 4).tolist()} Å): the cell is too oblique, too thin or the "
+            "cutoff too long; reduce the cell (e.g. to its Niggli-reduced form) or the cutoff"
+        )
+    reach = reach.astype(int)
     rng = [np.arange(-r, r + 1) for r in reach]
     images = np.stack(np.meshgrid(*rng, indexing="ij"), axis=-1).reshape(-1, 3)
     cart = frac @ lattice_A
