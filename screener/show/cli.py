@@ -10,19 +10,15 @@ from screener.errors import ScreenerError
 
 
 def _add_structure_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("file", help="structure file (CIF, POSCAR/CONTCAR/.vasp, or screener JSON)")
-    p.add_argument("--format", choices=["cif", "poscar", "json"], help="override the format guessed from the name")
-    p.add_argument("--species", help="comma-separated element symbols for an old-style POSCAR without a species line")
+    p.add_argument("file", help="structure file (CIF or screener JSON)")
+    p.add_argument("--format", choices=["cif", "json"], help="override the format guessed from the name")
     p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
 
 
 def _read(args):
     from screener.structure.formats import read_structure
 
-    options = {}
-    if getattr(args, "species", None):
-        options["species"] = [s.strip() for s in args.species.split(",") if s.strip()]
-    return read_structure(args.file, format=args.format, **options)
+    return read_structure(args.file, format=args.format)
 
 
 def _print_json(obj) -> None:

@@ -102,7 +102,7 @@ def test_demo_writes_report_for_every_invented_structure(tmp_path, capsys):
     assert main(["demo", "--out", str(out), "--quiet"]) == 0
     text = capsys.readouterr().out
     assert "invented" in text and "not a substitute for DFT" in text
-    names = sorted(p.name for p in demo_folder().iterdir() if p.suffix in (".cif", ".vasp"))
+    names = sorted(p.name for p in demo_folder().iterdir() if p.suffix in (".cif", ".json"))
     table = pd.read_csv(out / "ranked.csv")
     assert sorted(set(table["structure"])) == names
     for name in names:

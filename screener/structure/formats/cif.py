@@ -34,7 +34,7 @@ _CELL_TAGS = ("_cell_length_a", "_cell_length_b", "_cell_length_c",
               "_cell_angle_alpha", "_cell_angle_beta", "_cell_angle_gamma")
 
 
-def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DISTANCE_A, species=None) -> Crystal:
+def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
     """Read an ordered crystal structure from a CIF file.
 
     Parameters
@@ -45,13 +45,8 @@ def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DI
         Name of the data block to read (without ``data_``); default: the first block with a cell.
     min_distance_A : float
         Smallest interatomic distance accepted, Å.
-    species : None
-        Not used by CIF (elements come from the atom sites); giving it is an error.
     """
     import gemmi
-
-    if species is not None:
-        raise FormatError("a species list applies only to old-style POSCAR files; a CIF names its own elements")
 
     text = _read_text(path)
     try:
