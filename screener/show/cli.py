@@ -215,7 +215,7 @@ def _screen_settings(args):
     from screener.screen.settings import ScreenSettings
 
     return ScreenSettings(
-        kspacing_per_A=args.kspacing,
+        k_step_per_A=args.k_step,
         pair_exponent=args.pair_exponent,
         closure=args.closure,
         bulk_modulus_GPa=args.bulk_modulus_GPa,
@@ -302,7 +302,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--closure", choices=["bulk-modulus", "equilibrium"], default="bulk-modulus",
                    help="elastic closure: fitted to equilibrium and the bulk modulus (default), or to equilibrium "
                         "alone with the fixed --pair-exponent")
-    p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
+    p.add_argument("--k-step", type=float, default=0.2,
+                   help="starting step between k-points along each reciprocal vector, 1/Å with 2π included "
+                        "(default 0.2)")
     p.add_argument("--threshold-meV", type=float, default=1.0,
                    help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
     p.add_argument("--relax-cell", action="store_true",

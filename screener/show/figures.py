@@ -82,7 +82,7 @@ def plot_bands(path, energies_eV, fermi_level_eV: float, out_png, *, character=N
 
     Parameters
     ----------
-    path : routes.BandPath
+    path : routes.ZoneRoute
         The sampled path (x axis, ticks, continuous pieces).
     energies_eV : (n, nb) array
         Band energies at ``path.kfrac``, absolute, eV.

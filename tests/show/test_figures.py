@@ -5,14 +5,14 @@ import pytest
 from matplotlib.image import imread
 
 from screener import Crystal, ParameterError
-from screener.bz.routes import band_path
+from screener.bz.routes import zone_route
 from screener.show.figures import plot_bands, plot_energy_curves
 
 
 @pytest.fixture(scope="module")
 def cubic_bands():
     crystal = Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Po"])
-    path = band_path(crystal, points_per_inv_A=15)
+    path = zone_route(crystal, points_per_inv_A=15)
     c = np.cos(2 * np.pi * path.kfrac)
     # nearest-neighbour simple-cubic s band, Slater & Koster, Phys. Rev. 94, 1498 (1954); parameters invented
     e_s = -5.0 - 1.0 * c.sum(axis=1)
@@ -52,7 +52,7 @@ def test_plot_bands_plain_and_explicit_single_point(tmp_path, cubic_bands):
     out = plot_bands(path, energies, 0.0, tmp_path / "plain.png")
     assert _png_shape(out)[:2] == (750, 975)  # 6.5 x 5 inches at 150 dpi
     crystal = Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Po"])
-    one = band_path(crystal, kpoints="0,0,0")
+    one = zone_route(crystal, kpoints="0,0,0")
     out = plot_bands(one, np.array([[-1.0, 2.0]]), 0.0, tmp_path / "one.png")
     assert out.stat().st_size > 1000
 
