@@ -94,7 +94,9 @@ def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = S
         res = spglib.get_ir_reciprocal_mesh(mesh, _cell(crystal), is_shift=shift, is_time_reversal=True,
                                             symprec=symprec)
         if res is None:
-            raise SymmetryError(f"spglib could not reduce the {mesh} mesh of {crystal.formula}")
+            raise SymmetryError(f"the symmetry search could not reduce the {mesh} k-mesh of {crystal.formula} at a "
+                                f"tolerance of {symprec:g} Å; atoms closer together than the tolerance cause this, "
+                                "so try a smaller --symprec")
         full_map, grid = res
     else:
         grid = np.stack(np.meshgrid(*(np.arange(m) for m in mesh), indexing="ij"), -1).reshape(-1, 3)

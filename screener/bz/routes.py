@@ -92,7 +92,8 @@ def special_points(crystal: Crystal, symprec: float = 1e-3):
     if prim is None:
         prim = spglib.niggli_reduce(_CENTRING.get(centring, np.eye(3)) @ conv)
         if prim is None:
-            raise SymmetryError(f"spglib could not Niggli-reduce the primitive cell of {crystal.formula}")
+            raise SymmetryError(f"the Niggli reduction of the primitive cell of {crystal.formula} failed, so there is "
+                                "no default route; give the route's points with --kpoints")
         lattice_type = f"fallback-{family}"
         pts = {"Γ": (0, 0, 0), "X": (0.5, 0, 0), "Y": (0, 0.5, 0), "Z": (0, 0, 0.5)}
         path = [["Γ", "X"], ["Y", "Γ", "Z"]]

@@ -85,6 +85,17 @@ def test_info_symprec_loosens_symmetry(tmp_path, capsys):
     assert (strict, loose) == (99, 221)
 
 
+def test_failed_symmetry_search_is_one_line_in_our_words(tmp_path, capsys):
+    # like atoms 0.8 Å apart under a 1 Å tolerance defeat the symmetry search (common practice, no source)
+    path = tmp_path / "close.json"
+    sites = [{"element": "Ge", "frac": [0, 0, 0]}, {"element": "Ge", "frac": [0.2, 0, 0]}]
+    path.write_text(json.dumps({"lattice_A": (4.0 * np.eye(3)).tolist(), "sites": sites}))
+    assert main(["info", str(path), "--symprec", "1.0"]) == 2
+    err = capsys.readouterr().err
+    assert len(err.splitlines()) == 1 and "the symmetry search found no space group for Ge2" in err
+    assert "spglib" not in err and "Traceback" not in err
+
+
 # ------------------------------------------------------------------------------------------ bad files
 _GOOD_CIF = (DATA / "As_A7_hexagonal.cif").read_text()
 _CUBE = "data_t\n_cell_length_a {a}\n_cell_length_b {b}\n_cell_length_c 4\n_cell_angle_alpha 90\n" \
@@ -104,7 +115,8 @@ BAD_FILES = {
     "latin1-json": ("latin.json", "{\"title\": \"\xe9t\xe9\"}".encode("latin-1"), "not UTF-8"),
     "truncated-cif": ("cut.cif", _GOOD_CIF[: _GOOD_CIF.index("As1 As") + 9], "Wrong number of values"),
     "truncated-json": ("cut.json", '{"lattice_A": [[1, 0, 0], [0, ', "not valid JSON"),
-    "gemmi-duplicate-tag": ("dup.cif", "data_x\n_cell_length_a 4\n_cell_length_a 5\n", "not a readable CIF"),
+    "duplicate-tag": ("dup.cif", "data_x\n_cell_length_a 4\n_cell_length_a 5\n",
+                      "not a readable CIF file: line 3 (data_x): duplicate tag _cell_length_a"),
     "missing-cell": ("nocell.cif", _CUBE.format(a=4, b=4, sites="Ge1 Ge 0 0 0 1\n").replace(
         "_cell_length_c 4\n", ""), "missing _cell_length_c"),
     "negative-cell": ("neg.cif", _CUBE.format(a=-4, b=4, sites="Ge1 Ge 0 0 0 1\n"), "must be positive"),

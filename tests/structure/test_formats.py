@@ -110,7 +110,7 @@ _atom_site_occupancy
         (_CIF_HEAD + _SITES + "Q1 Qq 0 0 0 1\n", StructureError, "site Q1: unknown element symbol 'Qq'"),
         (_CIF_HEAD + _SITES + "Ge1 Ge 0 0 0 1\nGe2 Ge 0.1 0 0 1\n", StructureError, "closer than the minimum"),
         (_CIF_HEAD + "_symmetry_space_group_name_H-M 'Q 9 z'\n" + _SITES + "Ge1 Ge 0 0 0 1\n", FormatError,
-         "space group 'Q 9 z' is not a symbol gemmi recognises"),
+         "space group 'Q 9 z' is not a Hermann–Mauguin or Hall symbol the CIF reader knows"),
         (_CIF_HEAD, FormatError, r"no _atom_site_fract_x/_y/_z loop"),
         ("data_t\n_cell_length_a 4\n_cell_length_b 'oops\n", FormatError, "not a readable CIF file: line 3"),
         ("# nothing but a comment\n", FormatError, "no data_ block found"),

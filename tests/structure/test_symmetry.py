@@ -116,6 +116,21 @@ def test_bad_symprec():
         analyse(_load("Al_fcc_symbol_only.cif"), symprec=0.0)
 
 
+@pytest.mark.parametrize("step,message", [
+    (lambda c: analyse(c, symprec=1.0), "the symmetry search found no space group for Ge2 at a tolerance of 1 Å"),
+    (lambda c: primitive_cell(c, symprec=1.0), "the symmetry search found no primitive cell of Ge2"),
+    (lambda c: standard_cell(c, symprec=1.0), "could not put Ge2 in its standard setting"),
+    (lambda c: irreducible_mesh(c, (4, 4, 4), symprec=1.0), r"could not reduce the \(4, 4, 4\) k-mesh of Ge2"),
+], ids=["dataset", "primitive", "standard", "mesh"])
+def test_failed_symmetry_search_says_what_to_try(step, message):
+    # two like atoms 0.8 Å apart under a 1 Å tolerance: the search cannot tell them apart and gives up
+    # (common practice, no source); the message is in the tool's words and points at a smaller tolerance
+    crystal = Crystal(4.0 * np.eye(3), [[0, 0, 0], [0.2, 0, 0]], ["Ge", "Ge"])
+    with pytest.raises(SymmetryError, match=message + ".*smaller --symprec") as exc:
+        step(crystal)
+    assert "spglib" not in str(exc.value)
+
+
 def test_irreducible_mesh_weights_match_full_mesh():
     # reference: spglib's own grid mapping; every full-mesh point is counted once (sum of weights = 1 and the
     # multiplicities add up to the number of mesh points)
