@@ -268,10 +268,15 @@ def cmd_demo(args) -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from screener import __version__
+    from screener.screen.generators import GENERATORS
+
     parser = argparse.ArgumentParser(
         prog="screener",
         description="Screen crystal structures for band-driven (Peierls-type) bond-alternation instabilities.",
     )
+    parser.add_argument("--version", action="version", version=f"screener {__version__}",
+                        help="print the version and exit")
     parser.add_argument("--debug", action="store_true", help="show full tracebacks on errors")
     sub = parser.add_subparsers(dest="command", required=True)
 
@@ -293,7 +298,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--csv", help="also write the ranked table to this CSV file")
-    p.add_argument("--generator", action="append", help="candidate generator(s) to run (repeatable)")
+    p.add_argument("--generator", action="append", metavar="NAME",
+                   help=f"candidate generator to run, one of {', '.join(GENERATORS)} (repeatable; default: all that "
+                        "apply)")
     p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
     p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
     p.add_argument("--write-structures", help="write each optimum as CIF into this folder")
