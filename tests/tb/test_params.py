@@ -65,9 +65,11 @@ def test_onsite_table_spot_checks_against_the_primary_source():
 
 def test_onsite_table_header_and_units():
     import csv
-    from importlib.resources import files
+    from pathlib import Path
 
-    text = files("screener.tb.data").joinpath("onsite_energies_eV.csv").read_text()
+    from screener.tb import params
+
+    text = (Path(params.__file__).parent / "data" / "onsite_energies_eV.csv").read_text()
     header = [line for line in text.splitlines() if line.startswith("#")]
     # the header names the primary source, not a copy of it
     assert any("NIST Standard Reference Database 141" in line for line in header)
