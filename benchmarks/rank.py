@@ -17,7 +17,7 @@ def main() -> None:
     folder = demo_folder()
     total = 0.0
     print(f"{'structure':<24} {'atoms':>5} {'candidates':>10} {'seconds':>8}  best")
-    for path in sorted(p for p in folder.iterdir() if p.suffix.lower() in (".cif", ".vasp", ".json")):
+    for path in sorted(p for p in folder.iterdir() if p.suffix.lower() in (".cif", ".json")):
         crystal = read_structure(path)
         t0 = time.perf_counter()
         result = rank(crystal, progress=False)

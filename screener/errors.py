@@ -18,7 +18,7 @@ class ParameterError(ScreenerError, ValueError):
 
 
 class SymmetryError(ScreenerError, RuntimeError):
-    """spglib could not determine the symmetry of a structure."""
+    """The symmetry search could not determine the symmetry of a structure (space group, primitive cell, k-mesh)."""
 
 
 class ConvergenceError(ScreenerError, RuntimeError):

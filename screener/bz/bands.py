@@ -20,7 +20,7 @@ class BandStructure:
     model: object
     """The TightBindingModel used."""
     path: object
-    """routes.BandPath: k-points (fractions of the input cell's reciprocal vectors), ticks, labels."""
+    """routes.ZoneRoute: k-points (fractions of the input cell's reciprocal vectors), ticks, labels."""
     energies_eV: np.ndarray
     """(nk, nb) absolute band energies along the path, ascending, eV."""
     shells: tuple[str, ...]
@@ -80,14 +80,14 @@ def band_structure(crystal: Crystal, params=None, *, kpoints=None, symprec: floa
     parameter rules choose them.
     """
     from screener.bz.integrate import solve_on_mesh
-    from screener.bz.routes import band_path
+    from screener.bz.routes import zone_route
     from screener.tb.model import build_model
     from screener.tb.params import default_parameters
 
     if params is None:
         params = default_parameters(list(dict.fromkeys(crystal.species)))
     model = build_model(crystal, params, bonds=bonds)
-    path = band_path(crystal, symprec=symprec, kpoints=kpoints, periodic=model.periodic)
+    path = zone_route(crystal, symprec=symprec, kpoints=kpoints, periodic=model.periodic)
     with single_blas_thread():
         ground = solve_on_mesh(model, symprec=symprec)
         shells, member = orbital_groups(model)

@@ -64,7 +64,7 @@ def _check_eigs(eigs_eV, weights=None) -> np.ndarray:
         k, b = np.unravel_index(int(np.argmin(drop)), drop.shape)
         raise ParameterError(
             f"eigenvalues must ascend along the band axis, but at k-point index {k} band index {b + 1} lies "
-            f"{-drop[k, b]:.3g} eV below band index {b}; sort them (numpy.linalg.eigvalsh returns them sorted)"
+            f"{-drop[k, b]:.3g} eV below band index {b}; sort each k-point's energies in ascending order"
         )
     if weights is not None and np.shape(weights) != (e.shape[0],):
         raise ParameterError(

@@ -150,12 +150,12 @@ def integrate(eigs_ir_eV, kmesh: IrreducibleMesh, n_electrons, *, method="tetrah
                             smeared_energy_eV=energy, occupations=occ, **common)
 
 
-def solve_on_mesh(model, mesh=None, *, kspacing_per_A=0.15, method="tetrahedron", width_eV=0.05,
+def solve_on_mesh(model, mesh=None, *, k_step_per_A=0.15, method="tetrahedron", width_eV=0.05,
                   use_symmetry=True, symprec=1e-3, mp_order: int = 1, blochl: bool = True,
                   rotations=None) -> BandEnergyResult:
     """Band energy of a tight-binding model in one call: mesh → irreducible wedge → eigenvalues → integration.
 
-    ``mesh`` defaults to ``kmesh.mesh_from_spacing(model.crystal, kspacing_per_A, model.periodic)``; a given
+    ``mesh`` defaults to ``kmesh.mesh_from_spacing(model.crystal, k_step_per_A, model.periodic)``; a given
     mesh is forced to 1 along directions the model marks non-periodic. Symmetry reduction uses
     ``kmesh.irreducible_mesh`` (with ``rotations`` of the model's crystal when already known); the tetrahedra are
     split along the crystal's shortest reciprocal diagonal.
@@ -165,7 +165,7 @@ def solve_on_mesh(model, mesh=None, *, kspacing_per_A=0.15, method="tetrahedron"
     method = _norm_method(method)
     periodic = tuple(bool(p) for p in getattr(model, "periodic", (True, True, True)))
     if mesh is None:
-        mesh = mesh_from_spacing(model.crystal, kspacing_per_A, periodic)
+        mesh = mesh_from_spacing(model.crystal, k_step_per_A, periodic)
     else:
         mesh = tuple(m if p else 1 for m, p in zip(_check_mesh(mesh), periodic, strict=True))
     kmesh = irreducible_mesh(model.crystal, mesh, symprec=symprec, use_symmetry=use_symmetry,

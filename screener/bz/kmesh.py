@@ -1,4 +1,4 @@
-"""k-meshes: Monkhorst–Pack points, mesh sizes from a k-spacing, irreducible wedge by symmetry.
+"""k-meshes: Monkhorst–Pack points, mesh sizes from a k-step, irreducible wedge by symmetry.
 
 k-points are fractions of the reciprocal vectors of the cell they belong to (rows of ``Crystal.reciprocal_A``).
 """
@@ -28,15 +28,16 @@ def monkhorst_pack(mesh, shift=(0, 0, 0)) -> np.ndarray:
     return k - np.ceil(k - 0.5)
 
 
-def mesh_from_spacing(crystal: Crystal, kspacing_per_A: float, periodic=(True, True, True)) -> tuple[int, int, int]:
-    """Mesh sizes with k-point spacing at most ``kspacing_per_A`` (Å⁻¹, 2π included) along each reciprocal vector.
+def mesh_from_spacing(crystal: Crystal, k_step_per_A: float, periodic=(True, True, True)) -> tuple[int, int, int]:
+    """Mesh sizes with k-point spacing at most ``k_step_per_A`` (Å⁻¹, 2π included) along each reciprocal vector.
 
     Directions marked non-periodic (no hopping crosses the cell boundary) get a single point.
     """
-    if not (kspacing_per_A > 0):
-        raise ParameterError(f"k-point spacing must be a positive number in 1/Å, got {kspacing_per_A!r}")
+    if not (k_step_per_A > 0):
+        raise ParameterError(f"k_step_per_A (largest step between k-points) must be a positive number in 1/Å, "
+                             f"got {k_step_per_A!r}")
     b_len = 2 * np.pi * np.linalg.norm(crystal.reciprocal_A, axis=1)
-    n = np.maximum(1, np.ceil(b_len / kspacing_per_A - 1e-9)).astype(int)
+    n = np.maximum(1, np.ceil(b_len / k_step_per_A - 1e-9)).astype(int)
     n = np.where(np.asarray(periodic, dtype=bool), n, 1)
     return tuple(int(x) for x in n)
 
@@ -51,7 +52,7 @@ def _check_mesh(mesh) -> tuple[int, int, int]:
     return m
 
 
-# ================================================================================================ band paths
+# ================================================================================================ irreducible wedge
 
 @dataclass(frozen=True)
 class IrreducibleMesh:
@@ -93,7 +94,9 @@ def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = S
         res = spglib.get_ir_reciprocal_mesh(mesh, _cell(crystal), is_shift=shift, is_time_reversal=True,
                                             symprec=symprec)
         if res is None:
-            raise SymmetryError(f"spglib could not reduce the {mesh} mesh of {crystal.formula}")
+            raise SymmetryError(f"the symmetry search could not reduce the {mesh} k-mesh of {crystal.formula} at a "
+                                f"tolerance of {symprec:g} Å; atoms closer together than the tolerance cause this, "
+                                "so try a smaller --symprec")
         full_map, grid = res
     else:
         grid = np.stack(np.meshgrid(*(np.arange(m) for m in mesh), indexing="ij"), -1).reshape(-1, 3)

@@ -1,4 +1,4 @@
-"""Band paths through the special points of the Brillouin zone (Setyawan & Curtarolo 2010)."""
+"""Routes through the special points of the Brillouin zone for band plots (Setyawan & Curtarolo 2010)."""
 
 from __future__ import annotations
 
@@ -25,7 +25,7 @@ _CENTRING = CENTRING
 
 
 @dataclass(frozen=True)
-class BandPath:
+class ZoneRoute:
     """A piecewise-straight path through the Brillouin zone, sampled for a band-structure plot."""
 
     kfrac: np.ndarray
@@ -92,7 +92,8 @@ def special_points(crystal: Crystal, symprec: float = 1e-3):
     if prim is None:
         prim = spglib.niggli_reduce(_CENTRING.get(centring, np.eye(3)) @ conv)
         if prim is None:
-            raise SymmetryError(f"spglib could not Niggli-reduce the primitive cell of {crystal.formula}")
+            raise SymmetryError(f"the Niggli reduction of the primitive cell of {crystal.formula} failed, so there is "
+                                "no default route; give the route's points with --kpoints")
         lattice_type = f"fallback-{family}"
         pts = {"Γ": (0, 0, 0), "X": (0.5, 0, 0), "Y": (0, 0.5, 0), "Z": (0, 0, 0.5)}
         path = [["Γ", "X"], ["Y", "Γ", "Z"]]
@@ -201,9 +202,9 @@ def _tabulated(family: str, centring: str, conv: np.ndarray, a: float, b: float,
     return None, None, None, None
 
 
-def band_path(crystal: Crystal, points_per_inv_A: float = 40.0, symprec: float = 1e-3, *,
-              kpoints=None, min_points_per_leg: int = 4, periodic=None) -> BandPath:
-    """Band path through the special points of ``crystal`` (Setyawan & Curtarolo 2010) or through given points.
+def zone_route(crystal: Crystal, points_per_inv_A: float = 40.0, symprec: float = 1e-3, *,
+               kpoints=None, min_points_per_leg: int = 4, periodic=None) -> ZoneRoute:
+    """Route through the special points of ``crystal`` (Setyawan & Curtarolo 2010) or through given points.
 
     Parameters
     ----------
@@ -271,7 +272,7 @@ def band_path(crystal: Crystal, points_per_inv_A: float = 40.0, symprec: float =
         else:
             tick_x.append(float(x[idx]))
             tick_labels.append(lab)
-    return BandPath(
+    return ZoneRoute(
         kfrac=kfrac,
         x_inv_A=x,
         tick_x=np.array(tick_x),

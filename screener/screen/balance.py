@@ -161,7 +161,7 @@ class _Evaluator:
         return (*found[eps], float(eps))
 
 
-def family_mesh(family: DistortionFamily, kspacing_per_A: float, periodic) -> tuple[int, int, int]:
+def family_mesh(family: DistortionFamily, k_step_per_A: float, periodic) -> tuple[int, int, int]:
     """Γ-centred supercell mesh from a k-spacing, each size rounded up to a multiple of q's denominator.
 
     The parent's bands fold onto the supercell zone boundary, where the distortion opens its gap; a mesh that
@@ -170,7 +170,7 @@ def family_mesh(family: DistortionFamily, kspacing_per_A: float, periodic) -> tu
     from fractions import Fraction
 
     den = int(np.lcm.reduce([Fraction(x).limit_denominator(24).denominator for x in family.q_frac]))
-    mesh = mesh_from_spacing(family.reference, kspacing_per_A, periodic)
+    mesh = mesh_from_spacing(family.reference, k_step_per_A, periodic)
     return tuple(int(-(-n // den) * den) if p and n > 1 or (p and den > 1) else int(n)
                  for n, p in zip(mesh, periodic, strict=True))
 
@@ -187,7 +187,7 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     ev = _Evaluator(family, params, parent.repulsion_eV, parent.pair_exponent, settings,
                     bonds=context.supercell_bonds(m, ref), reference_rotations=context.supercell_rotations(m),
                     ensemble=parent.ensemble)
-    mesh = family_mesh(family, settings.kspacing_per_A, ev.model0.periodic)
+    mesh = family_mesh(family, settings.k_step_per_A, ev.model0.periodic)
     nn = context.supercell_shells(m, ref)
     d_min = float(nn.distance_A.min())
     lam_max = settings.max_amplitude_fraction * d_min
@@ -288,7 +288,7 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     converged = lam_ref == 0.0
     residual = 0.0 if converged else float("nan")
     passes = 0
-    spacing = settings.kspacing_per_A
+    spacing = settings.k_step_per_A
     for _ in range(int(settings.max_refinements)):
         if converged:
             break

@@ -206,7 +206,7 @@ def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet 
         params, model = parent.params, parent.model
     else:
         model = build_model(crystal, params, bonds=bonds)
-    mesh = mesh_from_spacing(crystal, settings.kspacing_per_A * settings.refine_factor, model.periodic)
+    mesh = mesh_from_spacing(crystal, settings.k_step_per_A * settings.refine_factor, model.periodic)
 
     def e_band(s):
         # uniform scaling keeps every symmetry: the parent's rotations reduce the mesh

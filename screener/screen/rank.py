@@ -167,7 +167,7 @@ class RankResult:
                 for c in self.candidates
             ],
             "settings": {
-                "kspacing_per_A": self.settings.kspacing_per_A,
+                "k_step_per_A": self.settings.k_step_per_A,
                 "method": self.settings.method,
                 "threshold_meV_per_atom": self.settings.threshold_meV_per_atom,
                 "convergence_meV_per_atom": self.settings.convergence_meV_per_atom,

@@ -15,8 +15,8 @@ CLOSURES = ("bulk-modulus", "equilibrium")
 class ScreenSettings:
     """Numerical settings of a screen; every field has a sensible default."""
 
-    kspacing_per_A: float = 0.2
-    """Starting k-point spacing, Å⁻¹ (2π included)."""
+    k_step_per_A: float = 0.2
+    """Starting step between k-points along each reciprocal vector, Å⁻¹ (2π included)."""
     convergence_meV_per_atom: float = 0.5
     """ΔE at the optimum is converged when a finer mesh changes it by less than this, meV/atom."""
     max_refinements: int = 6
@@ -24,7 +24,7 @@ class ScreenSettings:
     max_kpoints: int = 150_000
     """Largest full k-mesh (points) a refinement may use; beyond it the candidate is flagged unconverged."""
     refine_factor: float = 0.7
-    """Each refinement multiplies the k-spacing by this factor."""
+    """Each refinement multiplies the k-step by this factor."""
     max_amplitude_fraction: float = 0.12
     """Largest amplitude of the first scan, as a fraction of the parent's shortest bond."""
     amplitude_limit_fraction: float = 0.25
@@ -50,7 +50,7 @@ class ScreenSettings:
     """Symmetry tolerance, Å."""
 
     def __post_init__(self):
-        for name in ("kspacing_per_A", "convergence_meV_per_atom", "max_amplitude_fraction", "threshold_meV_per_atom"):
+        for name in ("k_step_per_A", "convergence_meV_per_atom", "max_amplitude_fraction", "threshold_meV_per_atom"):
             v = getattr(self, name)
             if not (isinstance(v, (int, float)) and v > 0):
                 raise ParameterError(f"{name} must be a positive number, got {v!r}")

@@ -10,19 +10,15 @@ from screener.errors import ScreenerError
 
 
 def _add_structure_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("file", help="structure file (CIF, POSCAR/CONTCAR/.vasp, or screener JSON)")
-    p.add_argument("--format", choices=["cif", "poscar", "json"], help="override the format guessed from the name")
-    p.add_argument("--species", help="comma-separated element symbols for an old-style POSCAR without a species line")
+    p.add_argument("file", help="structure file (CIF or screener JSON)")
+    p.add_argument("--format", choices=["cif", "json"], help="override the format guessed from the name")
     p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
 
 
 def _read(args):
     from screener.structure.formats import read_structure
 
-    options = {}
-    if getattr(args, "species", None):
-        options["species"] = [s.strip() for s in args.species.split(",") if s.strip()]
-    return read_structure(args.file, format=args.format, **options)
+    return read_structure(args.file, format=args.format)
 
 
 def _print_json(obj) -> None:
@@ -225,7 +221,7 @@ def _screen_settings(args):
     from screener.screen.settings import ScreenSettings
 
     return ScreenSettings(
-        kspacing_per_A=args.kspacing,
+        k_step_per_A=args.k_step,
         pair_exponent=args.pair_exponent,
         closure=args.closure,
         bulk_modulus_GPa=args.bulk_modulus_GPa,
@@ -325,7 +321,11 @@ def cmd_demo(args) -> int:
 def _add_rank_options(p: argparse.ArgumentParser) -> None:
     """Options of how a structure is ranked (shared by rank and batch)."""
     p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
-    p.add_argument("--generator", action="append", help="candidate generator(s) to run (repeatable)")
+    from screener.screen.generators import GENERATORS
+
+    p.add_argument("--generator", action="append", metavar="NAME",
+                   help=f"candidate generator to run, one of {', '.join(GENERATORS)} (repeatable; default: all that "
+                        "apply)")
     p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
     p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
     p.add_argument("--bulk-modulus-GPa", type=float,
@@ -333,7 +333,9 @@ def _add_rank_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--closure", choices=["bulk-modulus", "equilibrium"], default="bulk-modulus",
                    help="elastic closure: fitted to equilibrium and the bulk modulus (default), or to equilibrium "
                         "alone with the fixed --pair-exponent")
-    p.add_argument("--kspacing", type=float, default=0.2, help="starting k-point spacing in 1/Å, 2π included (default 0.2)")
+    p.add_argument("--k-step", type=float, default=0.2,
+                   help="starting step between k-points along each reciprocal vector, 1/Å with 2π included "
+                        "(default 0.2)")
     p.add_argument("--threshold-meV", type=float, default=1.0,
                    help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
     p.add_argument("--relax-cell", action="store_true",
@@ -342,10 +344,14 @@ def _add_rank_options(p: argparse.ArgumentParser) -> None:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from screener import __version__
+
     parser = argparse.ArgumentParser(
         prog="screener",
         description="Screen crystal structures for band-driven (Peierls-type) bond-alternation instabilities.",
     )
+    parser.add_argument("--version", action="version", version=f"screener {__version__}",
+                        help="print the version and exit")
     parser.add_argument("--debug", action="store_true", help="show full tracebacks on errors")
     sub = parser.add_subparsers(dest="command", required=True)
 

@@ -13,8 +13,38 @@ import numpy as np
 from screener.bz.bands import BandStructure, orbital_groups, shell_weights
 from screener.errors import ParameterError
 
-#: Colours of orbital-character groups in order (s, p, d, ...), chosen to stay distinguishable in print.
-CHARACTER_COLOURS = ("#1f63b4", "#d62728", "#2ca02c", "#9467bd", "#ff7f0e")
+#: The eight colours of M. Okabe & K. Ito, "Color Universal Design" (2008): distinguishable with the common forms
+#: of colour blindness.
+OKABE_ITO = {
+    "orange": "#E69F00",
+    "sky blue": "#56B4E9",
+    "bluish green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish purple": "#CC79A7",
+    "black": "#000000",
+}
+#: Colours of orbital-character groups in order (s, p, d, ...). Black is left out (it draws the total DOS) and
+#: yellow comes last (it is faint on white).
+CHARACTER_COLOURS = tuple(OKABE_ITO[c] for c in ("blue", "vermillion", "bluish green", "reddish purple", "orange",
+                                                  "sky blue", "yellow"))
+#: Colours of energy curves, one per candidate in order; after eight the marker shape changes as well.
+CURVE_COLOURS = tuple(OKABE_ITO[c] for c in ("blue", "vermillion", "bluish green", "reddish purple", "orange",
+                                              "sky blue", "black", "yellow"))
+_CURVE_MARKERS = ("o", "s", "^", "D", "v")
+#: Axis labels: quantity, symbol and unit.
+ENERGY_LABEL = r"energy $E - E_\mathrm{F}$ (eV)"
+ROUTE_LABEL = "wave vector along the route (path length, Å$^{-1}$)"
+DOS_LABEL = "density of states\n(states eV$^{-1}$ per atom)"
+AMPLITUDE_LABEL = "distortion amplitude λ, largest atomic displacement (Å)"
+DELTA_E_LABEL = "energy change ΔE from the parent (meV/atom)"
+
+
+def curve_style(index: int) -> tuple[str, str]:
+    """(colour, marker) of the energy curve number ``index`` (0-based): colours first, then marker shapes."""
+    n = len(CURVE_COLOURS)
+    return CURVE_COLOURS[index % n], _CURVE_MARKERS[(index // n) % len(_CURVE_MARKERS)]
 
 
 def _new_figure(figsize):
@@ -82,7 +112,7 @@ def plot_bands(path, energies_eV, fermi_level_eV: float, out_png, *, character=N
 
     Parameters
     ----------
-    path : routes.BandPath
+    path : routes.ZoneRoute
         The sampled path (x axis, ticks, continuous pieces).
     energies_eV : (n, nb) array
         Band energies at ``path.kfrac``, absolute, eV.
@@ -165,8 +195,8 @@ def plot_bands(path, energies_eV, fermi_level_eV: float, out_png, *, character=N
     ax.axhline(0.0, color="0.3", ls="--", lw=1.0, zorder=3)
     ax.set_xticks(list(path.tick_x))
     ax.set_xticklabels(list(path.tick_labels))
-    ax.set_ylabel("E − E$_\\mathrm{F}$ (eV)")
-    ax.set_xlabel("wave vector")
+    ax.set_ylabel(ENERGY_LABEL)
+    ax.set_xlabel(ROUTE_LABEL)
     if character is not None:
         handles = [Line2D([], [], color=colours[g], lw=2.5, label=labels[g]) for g in range(len(labels))]
         # above the axes: bands fill the whole panel, so any inside spot hides some of them
@@ -188,7 +218,7 @@ def plot_bands(path, energies_eV, fermi_level_eV: float, out_png, *, character=N
         inside = (ed >= lo) & (ed <= hi)
         top = float(total[inside].max()) if inside.any() else float(total.max())
         axd.set_xlim(0, 1.05 * top if top > 0 else 1.0)
-        axd.set_xlabel("DOS (states/eV/atom)")
+        axd.set_xlabel(DOS_LABEL)
         axd.tick_params(labelleft=False)
         if projected is not None:
             axd.legend(loc="lower left", bbox_to_anchor=(0.0, 1.0), fontsize=7, frameon=False, ncol=1)
@@ -276,13 +306,10 @@ def plot_energy_curves(curves, out_png, title=None, *, show_parts=None) -> Path:
         show_parts = len(data) <= 3
     fig = _new_figure((7.0, 4.8))
     ax = fig.subplots()
-    from matplotlib import colormaps
-
-    cmap = colormaps["tab10"] if len(data) <= 10 else colormaps["tab20"]
     any_parts = False
     for i, (label, amp, total, band, elastic, opt, band_range) in enumerate(data):
-        colour = cmap(i % cmap.N)
-        ax.plot(amp, total, "-o", color=colour, ms=3.5, lw=1.6, label=label)
+        colour, marker = curve_style(i)
+        ax.plot(amp, total, "-", marker=marker, color=colour, ms=3.5, lw=1.6, label=label)
         if band_range is not None:
             ax.fill_between(amp, band_range[0], band_range[1], color=colour, alpha=0.15, lw=0)
         if show_parts and band is not None:
@@ -294,8 +321,8 @@ def plot_energy_curves(curves, out_png, title=None, *, show_parts=None) -> Path:
         if opt is not None:
             ax.plot([opt[0]], [opt[1]], "*", color=colour, ms=11, mec="k", mew=0.6, zorder=5)
     ax.axhline(0.0, color="0.4", lw=0.8)
-    ax.set_xlabel("distortion amplitude λ (Å)")
-    ax.set_ylabel("ΔE (meV/atom)")
+    ax.set_xlabel(AMPLITUDE_LABEL)
+    ax.set_ylabel(DELTA_E_LABEL)
     handles, names = ax.get_legend_handles_labels()
     if any_parts:
         handles += [Line2D([], [], color="0.3", ls="-", label="total"),
@@ -335,6 +362,7 @@ def plot_band_structure(bs: BandStructure, out_png, title: str | None = None) ->
     dos = replace(dos, dos_per_eV=dos.dos_per_eV / n, states_below=dos.states_below / n,
                   projected_per_eV=None if dos.projected_per_eV is None else dos.projected_per_eV / n)
     if title is None:
-        title = f"{bs.crystal.formula} ({bs.path.lattice_type}), E_F = {result.fermi_level_eV:.3f} eV"
+        title = (f"{bs.crystal.formula} ({bs.path.lattice_type}), "
+                 f"$E_\\mathrm{{F}} = {result.fermi_level_eV:.3f}$ eV")
     return plot_bands(bs.path, bs.energies_eV, result.fermi_level_eV, out_png, character=bs.character,
                       character_labels=list(bs.shells), dos=dos, title=title)

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from screener.screen.rank import CAUTION, RankResult, rank, verdict_summary
 
-_STRUCTURE_ENDINGS = (".cif", ".vasp", ".poscar", ".json")
+_STRUCTURE_ENDINGS = (".cif", ".json")
 
 
 def _closure_line(parent) -> str:
@@ -133,8 +133,7 @@ def run_demo(out="screener-report", progress: bool = True) -> dict[str, RankResu
     from screener.structure.formats import read_structure
 
     folder = demo_folder()
-    files = sorted(p for p in folder.iterdir() if p.suffix.lower() in _STRUCTURE_ENDINGS or
-                   p.name.upper().startswith(("POSCAR", "CONTCAR")))
+    files = sorted(p for p in folder.iterdir() if p.suffix.lower() in _STRUCTURE_ENDINGS)
     print(f"Screening {len(files)} invented demo structures from {folder} (built-in universal parameters)", flush=True)
     results = {}
     for p in files:

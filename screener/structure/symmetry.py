@@ -15,6 +15,11 @@ from screener.structure.elements import ATOMIC_NUMBER
 SYMPREC_A = 1e-3
 
 
+#: What to try when the symmetry search fails: it fails when atoms lie closer together than the tolerance.
+_TOLERANCE_HINT = ("atoms closer together than the tolerance make the search fail, so try a smaller --symprec "
+                   "(or a larger one for a slightly distorted structure)")
+
+
 def _cell(crystal: Crystal):
     return (crystal.lattice_A, crystal.frac, [ATOMIC_NUMBER[s] for s in crystal.species])
 
@@ -26,8 +31,8 @@ def dataset(crystal: Crystal, symprec: float = SYMPREC_A):
     ds = spglib.get_symmetry_dataset(_cell(crystal), symprec=symprec)
     if ds is None:
         raise SymmetryError(
-            f"spglib could not find the symmetry of {crystal.formula} at symprec={symprec} Å: "
-            f"{spglib.get_error_message()}; try a larger --symprec"
+            f"the symmetry search found no space group for {crystal.formula} at a tolerance of {symprec:g} Å; "
+            f"{_TOLERANCE_HINT}"
         )
     return ds
 
@@ -184,7 +189,8 @@ def primitive_cell(crystal: Crystal, symprec: float = SYMPREC_A) -> Crystal:
     """Primitive cell (spglib's standardised primitive, which may be rotated with respect to the input)."""
     cell = spglib.standardize_cell(_cell(crystal), to_primitive=True, no_idealize=False, symprec=symprec)
     if cell is None:
-        raise SymmetryError(f"spglib could not find a primitive cell of {crystal.formula} at symprec={symprec} Å")
+        raise SymmetryError(f"the symmetry search found no primitive cell of {crystal.formula} at a tolerance of "
+                            f"{symprec:g} Å; {_TOLERANCE_HINT}")
     return _from_spglib_cell(cell, crystal)
 
 
@@ -192,7 +198,8 @@ def standard_cell(crystal: Crystal, symprec: float = SYMPREC_A) -> Crystal:
     """Standardised conventional cell (International Tables setting chosen by spglib)."""
     cell = spglib.standardize_cell(_cell(crystal), to_primitive=False, no_idealize=False, symprec=symprec)
     if cell is None:
-        raise SymmetryError(f"spglib could not standardise {crystal.formula} at symprec={symprec} Å")
+        raise SymmetryError(f"the symmetry search could not put {crystal.formula} in its standard setting at a "
+                            f"tolerance of {symprec:g} Å; {_TOLERANCE_HINT}")
     return _from_spglib_cell(cell, crystal)
 
 

@@ -3,7 +3,8 @@
 Defaults
 --------
 * On-site energies: NIST LDA atomic eigenvalues of the neutral atoms (Kotochigova, Levine, Shirley, Stiles &
-  Clark, 1997), table ``data/onsite_energies_eV.csv`` (source in its header).
+  Clark, NIST Standard Reference Database 141 (1997); Phys. Rev. A 55, 191 (1997)), table
+  ``data/onsite_energies_eV.csv`` (source in its header).
 * Orbitals: groups 1–2 (and H, He): ``s``; groups 13–18: ``s, p``; d-block groups 3–11: ``s, d``; group 12 (Zn, Cd, Hg: filled d shell kept in the core): ``s`` (Pd: ``d``,
   its 5s is empty in the free atom). The f-block has no defaults. The p level of groups 1, 2 and 12 is empty in
   the free atom, has no table entry, and must be given in a parameter file if wanted.

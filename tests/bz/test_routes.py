@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from screener import Crystal, ParameterError
-from screener.bz.routes import band_path, parse_kpoints, special_points
+from screener.bz.routes import parse_kpoints, special_points, zone_route
 
 
 def _rhombohedral(a, alpha_deg):
@@ -215,9 +215,9 @@ def test_fallback_for_triclinic():
     assert path == [["Γ", "X"], ["Y", "Γ", "Z"]]
 
 
-def test_band_path_sampling_and_ticks():
+def test_zone_route_sampling_and_ticks():
     crystal = CASES["CUB"]
-    bp = band_path(crystal, points_per_inv_A=30)
+    bp = zone_route(crystal, points_per_inv_A=30)
     a = 3.3
     # path Γ-X-M-Γ-R-X|M-R: lengths (2π/a) * (1/2, 1/2, √2/2, √3/2, √2/2 | √2/2 ... ) -- simple geometry
     legs = np.array([0.5, 0.5, np.sqrt(2) / 2, np.sqrt(3) / 2, np.sqrt(2) / 2, 0.5]) * 2 * np.pi / a
@@ -237,11 +237,11 @@ def test_band_path_sampling_and_ticks():
 
 def test_explicit_kpoints_string():
     crystal = CASES["CUB"]
-    bp = band_path(crystal, kpoints="0,0,0; X=0,0.5,0 ;0.5,0.5,0")
+    bp = zone_route(crystal, kpoints="0,0,0; X=0,0.5,0 ;0.5,0.5,0")
     assert bp.lattice_type == "explicit"
     assert [lab for _, lab in bp.vertices] == ["0,0,0", "X", "0.5,0.5,0"]
     assert np.array_equal(bp.kfrac[bp.vertices[1][0]], [0, 0.5, 0])
-    single = band_path(crystal, kpoints="0.25,0,0")
+    single = zone_route(crystal, kpoints="0.25,0,0")
     assert single.kfrac.shape == (1, 3) and single.x_inv_A.tolist() == [0.0]
 
 

@@ -21,7 +21,7 @@ KNOWN = Path(__file__).parents[1] / "data" / "known_phases"
 # quick cases of the literature set (sources in known_phases.csv) and coarse settings: the test is about the
 # bookkeeping, not the physics (common practice, no source)
 GOOD = ["K_bcc", "NaCl_rocksalt", "Si_diamond", "ZnS_zincblende", "MgO_rocksalt", "GaAs_zincblende"]
-SETTINGS = ScreenSettings(kspacing_per_A=0.35, max_refinements=2)
+SETTINGS = ScreenSettings(k_step_per_A=0.35, max_refinements=2)
 
 
 def _folder(tmp_path, names=GOOD, bad=True):
@@ -60,7 +60,7 @@ def test_mixed_folder_gives_one_row_per_structure_with_rank_s_answers(tmp_path):
     assert len(load_store(store)) == 6
     # other settings are another screen: everything is ranked again, into the same store
     other = run_batch([folder], store=store, workers=1, progress=False,
-                      settings=ScreenSettings(kspacing_per_A=0.4, max_refinements=1))
+                      settings=ScreenSettings(k_step_per_A=0.4, max_refinements=1))
     assert (other.ranked, other.failed) == (4, 2)
 
 
@@ -83,7 +83,7 @@ def test_killed_batch_resumes_with_every_structure_exactly_once(tmp_path):
                        "\n".join(str(p.relative_to(tmp_path)) for p in sorted(folder.rglob("*.cif"))) + "\n")
     store = tmp_path / "s.sqlite"
     cmd = [sys.executable, "-m", "screener.show.cli", "batch", str(listing), "--store", str(store), "--workers", "1",
-           "--kspacing", "0.35", "--quiet"]
+           "--k-step", "0.35", "--quiet"]
     proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
     deadline = time.time() + 120
     stored = 0
@@ -138,7 +138,7 @@ def test_batch_command_writes_csv_and_report(tmp_path, capsys):
 
     folder = _folder(tmp_path, GOOD[:2], bad=True)
     store, csv, rep = tmp_path / "s.sqlite", tmp_path / "out.csv", tmp_path / "rep"
-    args = ["batch", str(folder), "--store", str(store), "--workers", "1", "--kspacing", "0.35", "--quiet"]
+    args = ["batch", str(folder), "--store", str(store), "--workers", "1", "--k-step", "0.35", "--quiet"]
     assert main(args + ["--csv", str(csv), "--report", str(rep)]) == 0
     out = capsys.readouterr().out
     assert "2 ranked, 2 failed, 0 skipped" in out

@@ -161,8 +161,8 @@ def test_elastic_helpers_validate_and_follow_formulae():
         exponent_for_bulk_modulus(-5, 20.0, 1.0, 0.0)
     with pytest.raises(ParameterError, match="does not favour compression"):
         exponent_for_bulk_modulus(50, 20.0, -1.0, 0.0)
-    with pytest.raises(ParameterError, match="kspacing_per_A must be a positive number"):
-        ScreenSettings(kspacing_per_A=0)
+    with pytest.raises(ParameterError, match="k_step_per_A must be a positive number"):
+        ScreenSettings(k_step_per_A=0)
 
 
 def test_rhombohedral_split_only_for_cubic_networks():
@@ -195,7 +195,7 @@ def test_simple_cubic_polonium_is_not_flagged_unstable():
 def test_relaxed_rhombohedral_angle_lowers_energy_and_elongates_the_diagonal():
     crystal = simple_cubic(A_SC_AS)
     params = default_parameters(["As"])
-    settings = ScreenSettings(kspacing_per_A=0.3, max_refinements=1)
+    settings = ScreenSettings(k_step_per_A=0.3, max_refinements=1)
     context = build_parent(crystal, params, settings)
     (fixed,) = rhombohedral_split(context)
     (relaxed,) = rhombohedral_split(context, relax_cell=True)

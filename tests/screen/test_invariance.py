@@ -9,7 +9,7 @@ from screener.structure.crystal import Crystal
 from screener.tb.param_file import parameters_from_dict
 
 # coarse but identical numerical settings for every writing of a crystal (common practice, no source)
-SETTINGS = ScreenSettings(kspacing_per_A=0.3, max_refinements=2, convergence_meV_per_atom=2.0)
+SETTINGS = ScreenSettings(k_step_per_A=0.3, max_refinements=2, convergence_meV_per_atom=2.0)
 FCC = np.array([[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]])
 
 

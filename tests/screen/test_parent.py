@@ -58,7 +58,7 @@ def test_rank_analyses_the_parent_symmetry_once_and_searches_its_neighbours_once
     monkeypatch.setattr(spglib, "get_ir_reciprocal_mesh", count_ir)
     for module in (neighbours_module, bonds_module, crystal_module):
         monkeypatch.setattr(module, "find_neighbours", count_find)
-    result = rank(crystal, settings=ScreenSettings(kspacing_per_A=0.35, max_refinements=1), progress=False)
+    result = rank(crystal, settings=ScreenSettings(k_step_per_A=0.35, max_refinements=1), progress=False)
     assert result.candidates
     assert symmetry_calls == ["dataset"]
     assert len(neighbour_calls) == 1

@@ -95,7 +95,7 @@ def test_text_output_and_plot(tmp_path, capsys):
 
 
 def test_default_parameters_run(capsys):
-    out = _run_json(capsys, ["bands", "tests/data/As_A7_rhombohedral.vasp", "--json"])
+    out = _run_json(capsys, ["bands", "tests/data/As_A7_rhombohedral_P1.cif", "--json"])
     assert out["lattice_type"] in ("RHL1", "RHL2")
     assert len(out["energies_eV"]) == len(out["kpoints_frac"]) == len(out["x_inv_A"])
     assert out["orbital_groups"] == ["s", "p"]

@@ -3,6 +3,7 @@
 import json
 from pathlib import Path
 
+import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -24,7 +25,7 @@ def _info_json(capsys, *args):
 @pytest.mark.parametrize("name,n_atoms,wyckoff", [
     ("As_A7_hexagonal.cif", 6, "6c"),
     ("As_A7_rhombohedral.cif", 2, "6c"),
-    ("As_A7_rhombohedral.vasp", 2, "6c"),
+    ("As_A7_rhombohedral_P1.cif", 2, "6c"),
 ])
 def test_info_json_a7_arsenic(capsys, name, n_atoms, wyckoff):
     info = _info_json(capsys, DATA / name)
@@ -44,19 +45,19 @@ def test_info_json_a7_arsenic(capsys, name, n_atoms, wyckoff):
 
 
 def test_info_json_reads_back_as_structure(tmp_path, capsys):
-    info = _info_json(capsys, DATA / "GeTe_rocksalt_selective.vasp")
+    info = _info_json(capsys, DATA / "GeTe_rocksalt_primitive.cif")
     assert info["space_group"]["number"] == 225  # rocksalt, International Tables A, No. 225
     assert sorted(s["wyckoff"] for s in info["sites"]) == ["4a", "4b"]  # ITA No. 225: 4a + 4b
     assert info["valence_electrons"] == 10  # Ge 4 + Te 6 (groups 14 and 16)
     path = tmp_path / "again.json"
     path.write_text(json.dumps(info))
     again = read_structure(path)
-    original = read_structure(DATA / "GeTe_rocksalt_selective.vasp")
+    original = read_structure(DATA / "GeTe_rocksalt_primitive.cif")
     assert again.species == original.species and again.frac.tolist() == original.frac.tolist()
 
 
-def test_info_supercell_and_old_style_poscar(capsys):
-    info = _info_json(capsys, DATA / "Si_diamond_conventional_oldstyle.vasp", "--species", "Si")
+def test_info_conventional_cell(capsys):
+    info = _info_json(capsys, DATA / "Si_diamond_conventional.cif")
     # International Tables A, No. 227 Fd-3m; diamond: 2 atoms per primitive cell, 4 neighbours
     assert info["space_group"]["number"] == 227 and info["primitive_atoms"] == 2
     assert info["neighbour_shells_A"][0]["count_per_atom"] == 4
@@ -75,16 +76,28 @@ def test_info_table(capsys):
 def test_info_symprec_loosens_symmetry(tmp_path, capsys):
     # CsCl-type GeTe with Te moved 0.01 Å along z: a strict tolerance sees the polar tetragonal group P4mm
     # (International Tables A, No. 99), a loose one the CsCl type Pm-3m (No. 221)
-    path = tmp_path / "POSCAR"
-    path.write_text("GeTe\n1.0\n3.359 0 0\n0 3.359 0\n0 0 3.359\nGe Te\n1 1\nDirect\n0 0 0\n0.5 0.5 0.503\n")
+    path = tmp_path / "GeTe.json"
+    path.write_text(json.dumps({"lattice_A": (3.359 * np.eye(3)).tolist(),
+                                "sites": [{"element": "Ge", "frac": [0, 0, 0]},
+                                          {"element": "Te", "frac": [0.5, 0.5, 0.503]}]}))
     strict = _info_json(capsys, path, "--symprec", "1e-4")["space_group"]["number"]
     loose = _info_json(capsys, path, "--symprec", "0.05")["space_group"]["number"]
     assert (strict, loose) == (99, 221)
 
 
+def test_failed_symmetry_search_is_one_line_in_our_words(tmp_path, capsys):
+    # like atoms 0.8 Å apart under a 1 Å tolerance defeat the symmetry search (common practice, no source)
+    path = tmp_path / "close.json"
+    sites = [{"element": "Ge", "frac": [0, 0, 0]}, {"element": "Ge", "frac": [0.2, 0, 0]}]
+    path.write_text(json.dumps({"lattice_A": (4.0 * np.eye(3)).tolist(), "sites": sites}))
+    assert main(["info", str(path), "--symprec", "1.0"]) == 2
+    err = capsys.readouterr().err
+    assert len(err.splitlines()) == 1 and "the symmetry search found no space group for Ge2" in err
+    assert "spglib" not in err and "Traceback" not in err
+
+
 # ------------------------------------------------------------------------------------------ bad files
 _GOOD_CIF = (DATA / "As_A7_hexagonal.cif").read_text()
-_GOOD_POSCAR = (DATA / "GeTe_rocksalt_selective.vasp").read_text()
 _CUBE = "data_t\n_cell_length_a {a}\n_cell_length_b {b}\n_cell_length_c 4\n_cell_angle_alpha 90\n" \
         "_cell_angle_beta 90\n_cell_angle_gamma 90\nloop_\n_atom_site_label\n_atom_site_type_symbol\n" \
         "_atom_site_fract_x\n_atom_site_fract_y\n_atom_site_fract_z\n_atom_site_occupancy\n{sites}"
@@ -93,38 +106,38 @@ _JUNK = bytes(range(256)) * 8
 BAD_FILES = {
     # name: (file name, content, words expected in the message)
     "empty-cif": ("empty.cif", "", "empty"),
-    "empty-poscar": ("POSCAR", "", "empty"),
     "empty-json": ("empty.json", "", "empty"),
     "empty-unknown": ("empty.dat", "", "unrecognised format"),
     "junk-cif": ("junk.cif", _JUNK, "binary"),
-    "junk-poscar": ("junk.vasp", _JUNK, "binary"),
     "junk-json": ("junk.json", _JUNK, "not UTF-8"),
     "junk-unknown": ("junk.bin", _JUNK, "unrecognised format"),
     "latin1-cif": ("latin.cif", "\xe9t\xe9 \xff".encode("latin-1"), "not a readable CIF"),
-    "latin1-poscar": ("CONTCAR", "\xe9t\xe9\n".encode("latin-1"), "not UTF-8"),
+    "latin1-json": ("latin.json", "{\"title\": \"\xe9t\xe9\"}".encode("latin-1"), "not UTF-8"),
     "truncated-cif": ("cut.cif", _GOOD_CIF[: _GOOD_CIF.index("As1 As") + 9], "Wrong number of values"),
-    "truncated-poscar": ("cut.vasp", _GOOD_POSCAR[: _GOOD_POSCAR.index("Selective")], "truncated"),
     "truncated-json": ("cut.json", '{"lattice_A": [[1, 0, 0], [0, ', "not valid JSON"),
-    "gemmi-duplicate-tag": ("dup.cif", "data_x\n_cell_length_a 4\n_cell_length_a 5\n", "not a readable CIF"),
+    "duplicate-tag": ("dup.cif", "data_x\n_cell_length_a 4\n_cell_length_a 5\n",
+                      "not a readable CIF file: line 3 (data_x): duplicate tag _cell_length_a"),
     "missing-cell": ("nocell.cif", _CUBE.format(a=4, b=4, sites="Ge1 Ge 0 0 0 1\n").replace(
         "_cell_length_c 4\n", ""), "missing _cell_length_c"),
     "negative-cell": ("neg.cif", _CUBE.format(a=-4, b=4, sites="Ge1 Ge 0 0 0 1\n"), "must be positive"),
-    "degenerate-poscar": ("flat.vasp", "t\n1\n4 0 0\n0 4 0\n4 4 0\nGe\n1\nDirect\n0 0 0\n", "degenerate"),
-    "left-handed-poscar": ("lh.vasp", "t\n1\n4 0 0\n0 4 0\n0 0 -4\nGe\n1\nDirect\n0 0 0\n", "left-handed"),
+    "degenerate-json": ("flat.json", json.dumps({"lattice_A": [[4, 0, 0], [0, 4, 0], [4, 4, 0]],
+                                                 "sites": [{"element": "Ge", "frac": [0, 0, 0]}]}), "degenerate"),
+    "left-handed-json": ("lh.json", json.dumps({"lattice_A": [[4, 0, 0], [0, 4, 0], [0, 0, -4]],
+                                                "sites": [{"element": "Ge", "frac": [0, 0, 0]}]}), "left-handed"),
     "unknown-element-cif": ("el.cif", _CUBE.format(a=4, b=4, sites="X1 Xx 0 0 0 1\n"), "unknown element"),
-    "unknown-element-poscar": ("el.vasp", _GOOD_POSCAR.replace("Ge_d", "Zz"), "unknown element"),
     "unknown-element-json": ("el.json", json.dumps({"lattice_A": [[4, 0, 0], [0, 4, 0], [0, 0, 4]],
                                                     "sites": [{"element": "Qq", "frac": [0, 0, 0]}]}),
                              "unknown element"),
     "overlap-cif": ("close.cif", _CUBE.format(a=4, b=4, sites="Ge1 Ge 0 0 0 1\nGe2 Ge 0.1 0 0 1\n"),
                     "closer than the minimum"),
-    "overlap-poscar": ("close.vasp", _GOOD_POSCAR.replace("0.5 0.5 0.5", "0.01 0.0 0.0"), "closer than"),
+    "overlap-json": ("close.json", json.dumps({"lattice_A": [[4, 0, 0], [0, 4, 0], [0, 0, 4]],
+                                               "sites": [{"element": "Ge", "frac": [0, 0, 0]},
+                                                         {"element": "Te", "frac": [0.01, 0, 0]}]}), "closer than"),
     "partial-occupancy": ("part.cif", _CUBE.format(a=4, b=4, sites="Ge1 Ge 0 0 0 0.5\nTe1 Te 0 0 0 0.5\n"),
                           "ordered structure"),
     "mixed-site": ("mixed.cif", _CUBE.format(a=4, b=4, sites="Ge1 Ge 0 0 0 1\nTe1 Te 0 0 0 1\n"), "mixed site"),
     "unrecognised": ("notes.txt", "These are my notes about GeTe.\nNothing else.\n",
-                     "unrecognised format (not CIF or JSON; as POSCAR: line 2"),
-    "bad-index-poscar": ("idx.vasp", "t\n1\n4 0 0\n0 4 0\n0 0 4\nGe\n", "truncated"),
+                     "unrecognised format: neither CIF"),
     "wrong-json-type": ("list.json", "[1, 2, 3]", "expected a JSON object"),
     "missing-file": ("never-written.cif", None, "no such file"),
 }
@@ -158,13 +171,8 @@ def test_debug_shows_the_exception(tmp_path):
         main(["--debug", "info", str(path)])
 
 
-def test_species_option_on_cif_is_an_error(capsys):
-    assert main(["info", str(DATA / "Al_fcc_symbol_only.cif"), "--species", "Al"]) == 2
-    assert "applies only to old-style POSCAR" in capsys.readouterr().err
-
-
 # ------------------------------------------------------------------------------------------ fuzz
-_FUZZ_SOURCES = ["As_A7_hexagonal.cif", "GeTe_rocksalt_selective.vasp", "Al_fcc_symbol_only.cif"]
+_FUZZ_SOURCES = ["As_A7_hexagonal.cif", "GeTe_rocksalt_primitive.cif", "Al_fcc_symbol_only.cif"]
 
 
 @settings(max_examples=25, derandomize=True, deadline=None,

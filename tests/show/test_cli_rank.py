@@ -92,6 +92,25 @@ def test_rank_bad_options_exit_2_with_one_line(chain_files, capsys, args, messag
     assert len(err) == 1 and message in err[0]
 
 
+def test_version(capsys):
+    from importlib.metadata import version
+
+    # the version the package was installed with (pyproject.toml) is the one printed (common practice, no source)
+    with pytest.raises(SystemExit, match="^0$"):
+        main(["--version"])
+    assert capsys.readouterr().out == f"screener {version('screener')}\n"
+
+
+def test_generator_help_lists_the_generator_names(capsys):
+    from screener.screen.generators import GENERATORS
+
+    with pytest.raises(SystemExit, match="^0$"):
+        main(["rank", "--help"])
+    text = " ".join(capsys.readouterr().out.split())  # argparse wraps the help lines
+    assert f"--generator NAME candidate generator to run, one of {', '.join(GENERATORS)}" in text
+    assert GENERATORS == ("dimerise", "rhombohedral-split", "modulate")  # the names the README documents
+
+
 def test_demo_writes_report_for_every_invented_structure(tmp_path, capsys):
     # plumbing: the report folder holds a table row set, curves and band plots for every demo structure
     import pandas as pd
@@ -102,7 +121,7 @@ def test_demo_writes_report_for_every_invented_structure(tmp_path, capsys):
     assert main(["demo", "--out", str(out), "--quiet"]) == 0
     text = capsys.readouterr().out
     assert "invented" in text and "not a substitute for DFT" in text
-    names = sorted(p.name for p in demo_folder().iterdir() if p.suffix in (".cif", ".vasp"))
+    names = sorted(p.name for p in demo_folder().iterdir() if p.suffix in (".cif", ".json"))
     table = pd.read_csv(out / "ranked.csv")
     assert sorted(set(table["structure"])) == names
     for name in names:

@@ -80,7 +80,7 @@ def test_a7_nearest_neighbour_distances():
     short = np.sqrt(a * a / 3 + ((1 / 3 - 2 * z) * c) ** 2)
     long = np.sqrt(a * a / 3 + ((2 / 3 - 2 * z) * c) ** 2)
     assert (short, long) == pytest.approx((2.52, 3.12), abs=0.005)  # ≈2.52 / 3.12 Å, from memory
-    for name in ("As_A7_hexagonal.cif", "As_A7_rhombohedral.cif", "As_A7_rhombohedral.vasp"):
+    for name in ("As_A7_hexagonal.cif", "As_A7_rhombohedral.cif", "As_A7_rhombohedral_P1.cif"):
         shells = read_structure(DATA / name).neighbour_shells(cutoff_A=5.0)
         assert [s.distance_A for s in shells[:3]] == pytest.approx([short, long, a], abs=1e-4)
         assert [s.count_per_atom for s in shells[:3]] == [3, 3, 6]
@@ -96,7 +96,7 @@ def test_shells_of_cubic_lattices():
     a = 4.0495
     assert first_two("Al_fcc_symbol_only.cif") == pytest.approx(np.array([(a / np.sqrt(2), 12), (a, 6)]))
     a = 5.431
-    assert first_two("Si_diamond_primitive.vasp") == pytest.approx(
+    assert first_two("Si_diamond_primitive.cif") == pytest.approx(
         np.array([(a * np.sqrt(3) / 4, 4), (a / np.sqrt(2), 12)]))
     a = 3.359
     assert first_two("Po_simple_cubic_number_only.cif") == pytest.approx(np.array([(a, 6), (a * np.sqrt(2), 12)]))
@@ -124,7 +124,7 @@ def test_neighbour_search_matches_brute_force():
 
 # ----------------------------------------------------------------------------------- supercells
 def test_supercell_preserves_density_and_shells():
-    c = read_structure(DATA / "As_A7_rhombohedral.vasp")
+    c = read_structure(DATA / "As_A7_rhombohedral_P1.cif")
     for m in [(2, 1, 1), (2, 2, 2), [[1, 1, 0], [-1, 1, 0], [0, 0, 1]]]:
         s = c.supercell(m)
         det = round(abs(np.linalg.det(np.diag(m) if np.ndim(m) == 1 else np.array(m))))

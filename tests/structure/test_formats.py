@@ -110,7 +110,7 @@ _atom_site_occupancy
         (_CIF_HEAD + _SITES + "Q1 Qq 0 0 0 1\n", StructureError, "site Q1: unknown element symbol 'Qq'"),
         (_CIF_HEAD + _SITES + "Ge1 Ge 0 0 0 1\nGe2 Ge 0.1 0 0 1\n", StructureError, "closer than the minimum"),
         (_CIF_HEAD + "_symmetry_space_group_name_H-M 'Q 9 z'\n" + _SITES + "Ge1 Ge 0 0 0 1\n", FormatError,
-         "space group 'Q 9 z' is not a symbol gemmi recognises"),
+         "space group 'Q 9 z' is not a Hermann–Mauguin or Hall symbol the CIF reader knows"),
         (_CIF_HEAD, FormatError, r"no _atom_site_fract_x/_y/_z loop"),
         ("data_t\n_cell_length_a 4\n_cell_length_b 'oops\n", FormatError, "not a readable CIF file: line 3"),
         ("# nothing but a comment\n", FormatError, "no data_ block found"),
@@ -137,59 +137,13 @@ def test_cif_block_choice(tmp_path):
         read_structure(path, block="third")
 
 
-# ------------------------------------------------------------------------------------------ POSCAR
-def test_poscar_old_style_needs_species():
-    path = DATA / "Si_diamond_conventional_oldstyle.vasp"
-    with pytest.raises(FormatError, match="old-style POSCAR without an element line.*--species"):
-        read_structure(path)
-    c = read_structure(path, species=["Si"])
-    # conventional diamond cell: 8 atoms, a = 5.431 Å (from memory); Cartesian input scaled by line 2
-    assert c.n_atoms == 8 and c.volume_A3 == pytest.approx(5.431**3)
-    with pytest.raises(StructureError, match="species option lists 2 elements"):
-        read_structure(path, species=["Si", "Ge"])
-
-
-def test_poscar_negative_scale_selective_dynamics_and_suffixes():
-    c = read_structure(DATA / "GeTe_rocksalt_selective.vasp")
-    # negative scale = cell volume: fcc primitive cell of a = 6 Å has a^3/4 = 54 Å^3 (geometry)
-    assert c.volume_A3 == pytest.approx(54.0)
-    assert c.species == ("Ge", "Te")  # 'Ge_d' names a pseudopotential variant of Ge
-
-
-def test_poscar_rhombohedral_matches_cif():
-    a = read_structure(DATA / "As_A7_rhombohedral.vasp")
+def test_cif_p1_listing_matches_symmetry_expansion():
+    # the same A7 cell written twice: every atom listed in P1 (one at negative coordinates) and the asymmetric
+    # unit of R-3m expanded by the reader (International Tables A, No. 166, 2c on rhombohedral axes)
+    a = read_structure(DATA / "As_A7_rhombohedral_P1.cif")
     b = read_structure(DATA / "As_A7_rhombohedral.cif")
     assert np.linalg.eigvalsh(_metric(a)) == pytest.approx(np.linalg.eigvalsh(_metric(b)), abs=1e-4)
-
-
-_POSCAR = "t\n1.0\n4 0 0\n0 4 0\n0 0 4\nGe Te\n1 1\nDirect\n0 0 0\n0.5 0.5 0.5\n"
-
-
-@pytest.mark.parametrize(
-    "text,error,message",
-    [
-        (_POSCAR.replace("1.0", "one"), FormatError, "line 2: expected 1 or 3 number"),
-        (_POSCAR.replace("0 4 0", "0 4"), FormatError, "line 4: expected 3 number"),
-        (_POSCAR.replace("Ge Te", "Ge Xq"), StructureError, "line 6: unknown element symbol 'Xq'"),
-        (_POSCAR.replace("1 1", "1 1 1"), FormatError, "2 element symbols but 3 atom counts"),
-        (_POSCAR.replace("1 1", "1 x"), FormatError, "line 7: expected atom counts"),
-        (_POSCAR.replace("Direct", "Fractional"), FormatError, "line 8: expected 'Direct' or 'Cartesian'"),
-        (_POSCAR.replace("0.5 0.5 0.5\n", ""), FormatError, "where the position of atom 2 of 2 was expected"),
-        (_POSCAR.replace("0.5 0.5 0.5", "0.5 0.5"), FormatError, "line 10: expected three coordinates"),
-        (_POSCAR.replace("0.5 0.5 0.5", "0.5 nan 0.5"), StructureError, "non-finite"),
-        (_POSCAR.replace("0 0 4", "4 4 0"), StructureError, "cell is degenerate"),
-        (_POSCAR.replace("1.0", "0"), StructureError, "scale factor is 0"),
-        (_POSCAR[:12], FormatError, "truncated"),
-        ("t\n1.0\n4 0 0\n\n0 0 4\n", FormatError, "line 4: empty line"),
-    ],
-    ids=["scale", "short-vector", "element", "counts-mismatch", "counts-text", "mode", "truncated-positions",
-         "short-position", "nan", "degenerate", "zero-scale", "truncated-lattice", "blank-line"],
-)
-def test_poscar_errors(tmp_path, text, error, message):
-    path = tmp_path / "POSCAR"
-    path.write_text(text)
-    with pytest.raises(error, match=message):
-        read_structure(path)
+    assert _sorted_sites(a) == _sorted_sites(b)
 
 
 # ------------------------------------------------------------------------------------------ JSON
@@ -230,11 +184,11 @@ def test_json_syntax_error(tmp_path):
 
 
 # ------------------------------------------------------------------------------------------ round trips
-ROUND_TRIP = ["As_A7_hexagonal.cif", "As_A7_rhombohedral.vasp", "GeTe_rocksalt_selective.vasp",
+ROUND_TRIP = ["As_A7_hexagonal.cif", "As_A7_rhombohedral_P1.cif", "GeTe_rocksalt_primitive.cif",
               "Al_fcc_symbol_only.cif"]
 
 
-@pytest.mark.parametrize("fmt,suffix", [("cif", "out.cif"), ("poscar", "POSCAR"), ("json", "out.json")])
+@pytest.mark.parametrize("fmt,suffix", [("cif", "out.cif"), ("json", "out.json")])
 @pytest.mark.parametrize("name", ROUND_TRIP)
 def test_round_trip(tmp_path, name, fmt, suffix):
     original = read_structure(DATA / name)
@@ -249,20 +203,10 @@ def test_round_trip(tmp_path, name, fmt, suffix):
     assert np.array([(s.distance_A, s.count_per_atom) for s in again.neighbour_shells()]) == pytest.approx(
         np.array(shells), abs=1e-8)
     assert analyse(again).number == analyse(original).number
-    if fmt in ("json", "poscar"):  # these keep the Cartesian frame and (species already grouped) atom order
+    if fmt == "json":  # JSON keeps the Cartesian frame and the atom order
         assert again.lattice_A == pytest.approx(original.lattice_A, abs=1e-12)
         assert again.frac == pytest.approx(original.frac, abs=1e-12)
         assert again.labels == original.labels
-
-
-def test_poscar_writer_groups_species(tmp_path):
-    c = Crystal(6 * np.eye(3), [[0, 0, 0], [0.5, 0, 0], [0, 0.5, 0], [0.5, 0.5, 0]], ["Ge", "Te", "Ge", "Te"])
-    write_structure(c, tmp_path / "POSCAR")
-    lines = (tmp_path / "POSCAR").read_text().splitlines()
-    assert lines[5].split() == ["Ge", "Te"] and lines[6].split() == ["2", "2"]
-    again = read_structure(tmp_path / "POSCAR")
-    assert again.labels == ("Ge1", "Ge3", "Te2", "Te4")
-    assert again.frac == pytest.approx(c.frac[[0, 2, 1, 3]])
 
 
 _lattices = st.tuples(*[st.floats(-1.5, 1.5, allow_nan=False)] * 6, st.floats(3.0, 7.0))
@@ -270,7 +214,7 @@ _coords = st.lists(st.tuples(*[st.floats(0, 1, allow_nan=False, exclude_max=True
 
 
 @settings(max_examples=20, derandomize=True, deadline=None)
-@given(lat=_lattices, coords=_coords, fmt=st.sampled_from(["out.cif", "POSCAR", "out.json"]))
+@given(lat=_lattices, coords=_coords, fmt=st.sampled_from(["out.cif", "out.json"]))
 def test_round_trip_random_triclinic(tmp_path_factory, lat, coords, fmt):
     # arbitrary (well-conditioned) triclinic cells and positions survive write -> read to printed precision
     off = np.array([[0, lat[0], lat[1]], [lat[2], 0, lat[3]], [lat[4], lat[5], 0]])
@@ -287,8 +231,7 @@ def test_round_trip_random_triclinic(tmp_path_factory, lat, coords, fmt):
 
 
 # ------------------------------------------------------------------------------------------ format choice
-@pytest.mark.parametrize("name,fmt", [("a.cif", "cif"), ("X.CIF", "cif"), ("POSCAR", "poscar"),
-                                      ("CONTCAR_relaxed", "poscar"), ("GeTe.vasp", "poscar"), ("s.json", "json")])
+@pytest.mark.parametrize("name,fmt", [("a.cif", "cif"), ("X.CIF", "cif"), ("s.json", "json")])
 def test_guess_by_name(name, fmt):
     assert guess_format(name, sniff=False) == fmt
 
@@ -297,12 +240,19 @@ def test_guess_by_name(name, fmt):
     ('  {"lattice_A": []}', "json"),
     ("# comment\ndata_x\n_cell_length_a 4\n", "cif"),
     ("loop_\n_cell_length_a 4\n", "cif"),
-    (_POSCAR, "poscar"),
 ])
 def test_guess_by_content(tmp_path, text, fmt):
     path = tmp_path / "structure.txt"
     path.write_text(text)
     assert guess_format(path) == fmt
+
+
+def test_text_that_is_neither_format_is_refused(tmp_path):
+    # plain lines of numbers and symbols (no data_ line, no JSON object) are not guessed as anything
+    path = tmp_path / "structure.txt"
+    path.write_text("GeTe\n1.0\n4 0 0\n0 4 0\n0 0 4\nGe Te\n1 1\n0 0 0\n0.5 0.5 0.5\n")
+    with pytest.raises(FormatError, match=r"unrecognised format: neither CIF .* nor screener JSON .*--format"):
+        guess_format(path)
 
 
 def test_unknown_name_without_file():
@@ -312,8 +262,8 @@ def test_unknown_name_without_file():
 
 def test_format_override(tmp_path):
     path = tmp_path / "odd.dat"
-    path.write_text(_POSCAR)
-    assert read_structure(path, format="poscar").species == ("Ge", "Te")
+    path.write_text(_CIF_HEAD + _SITES + "Ge1 Ge 0 0 0 1\nTe1 Te 0.5 0.5 0.5 1\n")
+    assert read_structure(path, format="cif").species == ("Ge", "Te")
     with pytest.raises(FormatError, match="unknown format 'xyz'; choose one of"):
         read_structure(path, format="xyz")
 
@@ -330,12 +280,12 @@ def test_registry_lists_every_module():
 DEMO = Path(__file__).parents[2] / "demo_structures"
 # the symmetry each invented arrangement must have: simple cubic Pm-3m No. 221; a square net or an isolated
 # chain in a tetragonal box P4/mmm No. 123; rocksalt Fm-3m No. 225 (International Tables A)
-_DEMO_GROUPS = {"As_simple_cubic.cif": 221, "Te_simple_cubic.vasp": 221, "Sb_linear_chain.cif": 123,
-                "Sb_square_net.vasp": 123, "GeTe_rocksalt.cif": 225}
+_DEMO_GROUPS = {"As_simple_cubic.cif": 221, "Te_simple_cubic.cif": 221, "Sb_linear_chain.cif": 123,
+                "Sb_square_net.cif": 123, "GeTe_rocksalt.cif": 225}
 
 
 def test_demo_structures_are_small_marked_and_symmetric():
-    files = sorted(p.name for p in DEMO.iterdir() if p.suffix in (".cif", ".vasp"))
+    files = sorted(p.name for p in DEMO.iterdir() if p.suffix in (".cif", ".json"))
     assert files == sorted(_DEMO_GROUPS)
     for name, number in _DEMO_GROUPS.items():
         c = read_structure(DEMO / name)

@@ -56,14 +56,29 @@ def test_harrison_coefficient_table_matches_the_publications():
     assert eta["1981"] == {"ss_sigma": -1.32, "sp_sigma": 1.42, "pp_sigma": 2.22, "pp_pi": -0.63}
 
 
-def test_onsite_table_spot_checks_against_the_source_file():
+def test_onsite_table_spot_checks_against_the_primary_source():
     t = onsite_table()
-    # pymatgen/core/periodic_table.json "Atomic orbitals" (NIST LDA, Kotochigova et al. 1997):
-    # Si 3s = -0.398139 Ha, As 4p = -0.197497 Ha; 1 Ha = 27.211386 eV (CODATA)
-    assert t["Si"]["s"] == pytest.approx(-0.398139 * 27.211386, abs=1e-5)
-    assert t["As"]["p"] == pytest.approx(-0.197497 * 27.211386, abs=1e-5)
-    # Fe 3d = -0.295049 Ha in the same file
-    assert t["Fe"]["d"] == pytest.approx(-0.295049 * 27.211386, abs=1e-5)
+    # NIST Standard Reference Database 141 (Kotochigova, Levine, Shirley, Stiles & Clark 1997), Mg table, LDA
+    # column: 3s = -0.175427 Ha; 1 Ha = 27.211386 eV (CODATA)
+    assert t["Mg"]["s"] == pytest.approx(-0.175427 * 27.211386, abs=1e-5)
+
+
+def test_onsite_table_header_and_units():
+    import csv
+    from pathlib import Path
+
+    from screener.tb import params
+
+    text = (Path(params.__file__).parent / "data" / "onsite_energies_eV.csv").read_text()
+    header = [line for line in text.splitlines() if line.startswith("#")]
+    # the header names the primary source, not a copy of it
+    assert any("NIST Standard Reference Database 141" in line for line in header)
+    assert any("Phys. Rev. A 55, 191 (1997)" in line for line in header)
+    rows = list(csv.DictReader(line for line in text.splitlines() if not line.startswith("#")))
+    assert len(rows) > 80
+    for row in rows:
+        # every eV value is its hartree value times 27.211386 eV (CODATA hartree energy), to the printed digits
+        assert float(row["energy_eV"]) == pytest.approx(float(row["energy_Ha"]) * 27.211386, abs=2e-6), row
 
 
 def test_default_species_bases():

@@ -12,21 +12,20 @@ from screener.structure.crystal import Crystal
 #: format name -> (module under screener.structure.formats, file name endings that select it)
 FORMATS: dict[str, tuple[str, tuple[str, ...]]] = {
     "cif": ("cif", (".cif", ".mmcif")),
-    "poscar": ("poscar", (".vasp", ".poscar", "poscar", "contcar")),
     "json": ("json_format", (".json",)),
 }
 
 
 def guess_format(path: str | Path, sniff: bool = True) -> str:
-    """Format name from the file name (extension, or the names POSCAR/CONTCAR), else from the content.
+    """Format name from the file name ending, else from the content.
 
     Content rules, used only when the name says nothing and ``sniff`` is true and the file exists: a JSON object
-    (first character ``{``) is json; a ``data_`` line or a ``_cell_length`` tag is cif; other text is tried as
-    POSCAR. Binary files and, without sniffing, unknown names raise FormatError.
+    (first character ``{``) is json; a ``data_`` line or a ``_cell_length`` tag is cif. Other text, binary files
+    and, without sniffing, unknown names raise FormatError.
     """
     name = Path(path).name.lower()
     for fmt, (_, endings) in FORMATS.items():
-        if any(name.endswith(e) or name.startswith(e.lstrip(".")) and not e.startswith(".") for e in endings):
+        if name.endswith(endings):
             return fmt
     hint = (f"use one of the endings {', '.join(e for _, es in FORMATS.values() for e in es)} "
             f"or pass --format {{{','.join(FORMATS)}}}")
@@ -36,20 +35,16 @@ def guess_format(path: str | Path, sniff: bool = True) -> str:
         head = fh.read(4096)
     if b"\x00" in head or not head.strip():
         what = "is empty" if not head.strip() else "holds binary data"
-        raise FormatError(f"{path}: unrecognised format: the file {what}; expected CIF, POSCAR or JSON text")
+        raise FormatError(f"{path}: unrecognised format: the file {what}; expected CIF or screener JSON text")
     text = head.decode("utf-8", errors="replace")
     if text.lstrip().startswith("{"):
         return "json"
     if re.search(r"^\s*data_", text, flags=re.MULTILINE) or "_cell_length" in text:
         return "cif"
-    return "poscar"
-
-
-def _by_name(path) -> str | None:
-    try:
-        return guess_format(path, sniff=False)
-    except FormatError:
-        return None
+    raise FormatError(
+        f"{path}: unrecognised format: neither CIF (no data_ line or _cell_length tag in the first 4096 bytes) "
+        f"nor screener JSON (does not start with '{{'); {hint}"
+    )
 
 
 def _module(fmt: str):
@@ -64,16 +59,12 @@ def read_structure(path: str | Path, format: str | None = None, **options) -> Cr
     if not path.is_file():
         raise FormatError(f"{path}: no such file" + (" (it is a folder)" if path.is_dir() else ""))
     fmt = format or guess_format(path)
-    # a file whose name says nothing and whose content looks like neither CIF nor JSON is tried as POSCAR
-    fallback = format is None and fmt == "poscar" and _by_name(path) is None
     try:
         return _module(fmt).read(path, **options)
     except ScreenerError as exc:
         msg = str(exc)
         if msg.startswith(str(path)):
             msg = msg[len(str(path)):].lstrip(": ")
-        if fallback and isinstance(exc, FormatError):
-            msg = f"unrecognised format (not CIF or JSON; as POSCAR: {msg}); pass --format if you know it"
         raise type(exc)(f"{path}: {msg}") from exc
     except (UnicodeDecodeError, OSError) as exc:
         # readers decode and open files themselves; this is the net for what they did not foresee

@@ -34,7 +34,7 @@ _CELL_TAGS = ("_cell_length_a", "_cell_length_b", "_cell_length_c",
               "_cell_angle_alpha", "_cell_angle_beta", "_cell_angle_gamma")
 
 
-def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DISTANCE_A, species=None) -> Crystal:
+def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
     """Read an ordered crystal structure from a CIF file.
 
     Parameters
@@ -45,25 +45,20 @@ def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DI
         Name of the data block to read (without ``data_``); default: the first block with a cell.
     min_distance_A : float
         Smallest interatomic distance accepted, Å.
-    species : None
-        Not used by CIF (elements come from the atom sites); giving it is an error.
     """
     import gemmi
-
-    if species is not None:
-        raise FormatError("a species list applies only to old-style POSCAR files; a CIF names its own elements")
 
     text = _read_text(path)
     try:
         doc = gemmi.cif.read_string(text)
     except (RuntimeError, ValueError) as exc:
-        raise FormatError(f"not a readable CIF file: {_gemmi_message(exc)}") from None
+        raise FormatError(f"not a readable CIF file: {_parser_message(exc)}") from None
     blk = _choose_block(doc, block)
     lattice = _lattice(blk)
     try:
         small = gemmi.make_small_structure_from_block(blk)
     except (RuntimeError, ValueError, IndexError) as exc:
-        raise FormatError(f"data block {blk.name!r}: {_gemmi_message(exc)}") from None
+        raise FormatError(f"data block {blk.name!r}: {_parser_message(exc)}") from None
     ops = _operations(small, blk, lattice)
     labels, species, frac, occ = _asymmetric_unit(blk)
     for lab, o in zip(labels, occ, strict=True):
@@ -150,8 +145,10 @@ def _read_text(path: Path) -> str:
         return data.decode("latin-1")
 
 
-def _gemmi_message(exc: Exception) -> str:
+def _parser_message(exc: Exception) -> str:
+    """The CIF parser's complaint with its in-memory source name replaced by the line (and block) it names."""
     msg = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    msg = re.sub(r"^string:(\d+) in (\S+?):\s*", r"line \1 (\2): ", msg)
     return re.sub(r"^string:(\d+):\S*\s*", r"line \1: ", msg)
 
 
@@ -208,7 +205,7 @@ def _operations(small, blk, lattice) -> list[tuple[np.ndarray, np.ndarray]]:
             try:
                 ops.append(gemmi.Op(triplet))
             except (RuntimeError, ValueError) as exc:
-                raise FormatError(f"symmetry operator {triplet!r} cannot be read: {_gemmi_message(exc)}") from None
+                raise FormatError(f"symmetry operator {triplet!r} cannot be read: {_parser_message(exc)}") from None
     else:
         sg = small.spacegroup
         if sg is None:
@@ -216,8 +213,8 @@ def _operations(small, blk, lattice) -> list[tuple[np.ndarray, np.ndarray]]:
             hall = (small.spacegroup_hall or "").strip()
             if hm or hall:
                 raise FormatError(
-                    f"space group {hm or hall!r} is not a symbol gemmi recognises; list the symmetry "
-                    "operators in a _space_group_symop_operation_xyz loop or fix the symbol"
+                    f"space group {hm or hall!r} is not a Hermann–Mauguin or Hall symbol the CIF reader knows; "
+                    "list the symmetry operators in a _space_group_symop_operation_xyz loop or fix the symbol"
                 )
             number = small.spacegroup_number
             if number and number > 0:

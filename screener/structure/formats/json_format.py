@@ -31,10 +31,8 @@ FORMAT_MARKER = "screener-structure"
 VERSION = 1
 
 
-def read(path: Path, *, min_distance_A: float = MIN_DISTANCE_A, species=None) -> Crystal:
-    """Read a structure from screener JSON (see module docstring for the layout); ``species`` must be None."""
-    if species is not None:
-        raise FormatError("a species list applies only to old-style POSCAR files; JSON sites name their elements")
+def read(path: Path, *, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
+    """Read a structure from screener JSON (see module docstring for the layout)."""
     data = Path(path).read_bytes()
     if not data.strip():
         raise FormatError("file is empty; expected a JSON object with lattice_A and sites")
