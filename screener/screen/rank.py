@@ -17,7 +17,7 @@ from screener.screen.balance import (
 from screener.screen.generators import default_candidates
 from screener.screen.parent import build_parent
 from screener.structure.crystal import Crystal
-from screener.structure.elements import HAZARDOUS
+from screener.structure.elements import RADIOACTIVE, TOXIC
 from screener.tb.model import single_blas_thread
 
 CAUTION = (
@@ -28,11 +28,16 @@ CAUTION = (
 
 def safety_note(crystal: Crystal) -> str:
     """One line naming toxic or radioactive elements present, or ''."""
-    bad = sorted({s for s in crystal.species if s in HAZARDOUS})
-    if not bad:
+    present = set(crystal.species)
+    toxic, radioactive = sorted(present & TOXIC), sorted(present & RADIOACTIVE)
+    if not toxic and not radioactive:
         return ""
-    return (f"Contains {', '.join(bad)} (toxic or radioactive): follow your lab's safety rules before any "
-            "synthesis or handling.")
+    parts = []
+    if toxic:
+        parts.append(f"{', '.join(toxic)} (toxic)")
+    if radioactive:
+        parts.append(f"{', '.join(radioactive)} (radioactive)")
+    return (f"Contains {' and '.join(parts)}: follow your lab's safety rules before any synthesis or handling.")
 
 
 @dataclass(frozen=True)

@@ -243,13 +243,20 @@ def cmd_rank(args) -> int:
     from screener.screen.rank import rank
     from screener.show.report import format_rank_text, write_optimum_structures
 
+    if args.csv:
+        _check_output_file(args.csv, "--csv")
+    if args.write_structures:
+        from pathlib import Path
+
+        if Path(args.write_structures).exists() and not Path(args.write_structures).is_dir():
+            raise ScreenerError(f"--write-structures {args.write_structures} is a file; give a folder for the CIFs")
     crystal = _read(args)
     params = _parameters_for(crystal, args.params)
     q_extra = [_parse_q(q) for q in (args.q or [])]
     result = rank(crystal, params, generators=args.generator, extra_q=q_extra, settings=_screen_settings(args),
                   progress=not args.json and not args.quiet, relax_cell=args.relax_cell)
     if args.csv:
-        result.table().to_csv(args.csv, index=False)
+        _write_atomically(args.csv, result.table().to_csv(index=False))
     written = write_optimum_structures(result, args.write_structures) if args.write_structures else []
     if args.json:
         out = result.to_dict()
@@ -287,7 +294,7 @@ def cmd_batch(args) -> int:
         line += " — nothing to do"
     print(line)
     if args.csv:
-        load_store(args.store).to_csv(args.csv, index=False)
+        _write_atomically(args.csv, load_store(args.store).to_csv(index=False))
         print(f"wrote {args.csv}")
     if args.report:
         from screener.show.batch_report import write_batch_report
@@ -297,6 +304,23 @@ def cmd_batch(args) -> int:
         print("screener batch: stopped before the end; run the same command again to finish", file=sys.stderr)
         return 130
     return 0
+
+
+def _write_atomically(path, text: str) -> None:
+    """Write ``text`` to a temporary file beside ``path``, then rename it: never a half-written file."""
+    import os
+    import tempfile
+    from pathlib import Path
+
+    p = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}-", dir=p.resolve().parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
+            fh.write(text)
+        os.replace(tmp, p)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
 
 
 def _check_output_file(path, option: str) -> None:

@@ -83,14 +83,51 @@ def demo_folder() -> Path:
     return Path(__file__).resolve().parents[2] / "demo_structures"
 
 
+def check_report_folder(out) -> Path:
+    """``out`` as a report folder that may be (re)written: refused before any work when it is a file, holds
+    something other than a report of ours, or its parent folder cannot be written."""
+    import os
+
+    from screener.errors import ParameterError
+
+    out = Path(out)
+    if out.exists() and not out.is_dir():
+        raise ParameterError(f"--out {out} is a file; give a folder for the report")
+    if out.is_dir() and any(out.iterdir()) and not (out / "summary.txt").is_file():
+        raise ParameterError(f"--out {out} exists and is not a screener report folder; give a new or empty folder")
+    parent = out.resolve().parent
+    if not parent.is_dir() or not os.access(parent, os.W_OK):
+        raise ParameterError(f"--out {out}: cannot write in {parent}; choose a folder you can write to")
+    return out
+
+
 def write_report(results: dict[str, RankResult], out) -> Path:
-    """Report folder: summary.txt, ranked.csv (all structures), results.json, E(λ) curves and band plots (PNG)."""
+    """Report folder: summary.txt, ranked.csv (all structures), results.json, E(λ) curves and band plots (PNG).
+
+    Written into a temporary folder beside ``out`` and renamed when complete, so an interrupted run never leaves
+    a half-written report; an earlier report in ``out`` is replaced.
+    """
+    import shutil
+    import tempfile
+
+    final = check_report_folder(out)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{final.name}-", dir=final.resolve().parent))
+    try:
+        _write_report_files(results, tmp)
+        if final.exists():
+            shutil.rmtree(final)
+        tmp.rename(final)
+    finally:
+        if tmp.exists():
+            shutil.rmtree(tmp, ignore_errors=True)
+    return final
+
+
+def _write_report_files(results: dict[str, RankResult], out: Path) -> Path:
     import pandas as pd
 
     from screener.show import figures
 
-    out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
     frames, texts, blob = [], [], {}
     for name, res in results.items():
         t = res.table()
@@ -132,6 +169,7 @@ def run_demo(out="screener-report", progress: bool = True) -> dict[str, RankResu
     """Rank every demo structure, print a summary and write the report folder."""
     from screener.structure.formats import read_structure
 
+    check_report_folder(out)  # before the work, not after it
     folder = demo_folder()
     files = sorted(p for p in folder.iterdir() if p.suffix.lower() in _STRUCTURE_ENDINGS)
     print(f"Screening {len(files)} invented demo structures from {folder} (built-in universal parameters)", flush=True)

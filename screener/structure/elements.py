@@ -33,10 +33,14 @@ GROUP: dict[str, int] = {
 }
 ATOMIC_NUMBER: dict[str, int] = {s: z for z, s in enumerate(SYMBOLS, start=1)}
 
-#: Elements whose handling calls for particular care (toxic or radioactive); reports add a safety line.
-HAZARDOUS = frozenset(
-    "Be As Se Cd Hg Tl Pb Te Po At Rn Fr Ra Ac Th Pa U Np Pu Am Cm Bk Cf Es Fm Md No Lr Tc Pm".split()
+#: Toxic elements that often appear in Peierls candidates (common laboratory hazard knowledge, no source).
+TOXIC = frozenset("Be As Se Sb Cd Hg Tl Pb Te".split())
+#: Radioactive elements: no stable isotope (common knowledge of the chart of nuclides, no source).
+RADIOACTIVE = frozenset(
+    "Tc Pm Po At Rn Fr Ra Ac Th Pa U Np Pu Am Cm Bk Cf Es Fm Md No Lr".split()
 )
+#: Elements whose handling calls for particular care (toxic or radioactive); reports add a safety line.
+HAZARDOUS = TOXIC | RADIOACTIVE
 
 
 def normalise_symbol(symbol: str) -> str:

@@ -1,0 +1,35 @@
+"""Output paths are checked before the work, and the safety line says which element is which hazard."""
+
+import numpy as np
+
+from screener.show.cli import main
+from screener.structure.crystal import Crystal
+
+
+def test_bad_output_paths_are_refused_before_any_work(tmp_path, capsys):
+    # the structure file does not even exist: a refusal naming the output proves the check comes first
+    missing = str(tmp_path / "not_read.cif")
+    assert main(["rank", missing, "--csv", str(tmp_path)]) == 2
+    assert "--csv" in capsys.readouterr().err
+    a_file = tmp_path / "a_file.txt"
+    a_file.write_text("x")
+    assert main(["rank", missing, "--write-structures", str(a_file)]) == 2
+    assert "--write-structures" in capsys.readouterr().err
+    assert main(["demo", "--out", str(a_file)]) == 2
+    assert "is a file" in capsys.readouterr().err
+    other = tmp_path / "someone_elses"
+    other.mkdir()
+    (other / "thesis.tex").write_text("keep me")
+    assert main(["demo", "--out", str(other)]) == 2
+    assert "not a screener report folder" in capsys.readouterr().err
+    assert (other / "thesis.tex").read_text() == "keep me"
+
+
+def test_safety_line_says_which_element_is_toxic_and_which_radioactive():
+    # Pb and Te are toxic, Po is radioactive (no stable isotope); common laboratory knowledge, no source
+    from screener.screen.rank import safety_note
+
+    line = safety_note(Crystal(np.eye(3) * 6.0, [[0, 0, 0], [0.5, 0.5, 0.5], [0.5, 0, 0]], ["Pb", "Te", "Po"]))
+    assert "Pb, Te (toxic)" in line and "Po (radioactive)" in line
+    assert safety_note(Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Sb"])).startswith("Contains Sb (toxic)")
+    assert safety_note(Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Na"])) == ""
