@@ -193,34 +193,33 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     lam_max = settings.max_amplitude_fraction * d_min
     lams = np.linspace(0.0, lam_max, int(settings.n_scan) + 1)
 
-    cache: dict[float, tuple[float, float, object]] = {}
+    def cached(evaluator):
+        """evaluator.energies(λ, mesh), each (λ, mesh) computed once and counted on the progress bar."""
+        cache: dict[tuple, tuple[float, float, object, float]] = {}
 
-    def e_at(lam: float, m=mesh):
-        key = (round(float(lam), 10), tuple(m))
-        if key not in cache:
-            cache[key] = ev.energies(lam, m)
-            if progress is not None:
-                progress.update(1)
-        return cache[key]
+        def energy(lam: float, m=mesh):
+            key = (round(float(lam), 10), tuple(m))
+            if key not in cache:
+                cache[key] = evaluator.energies(lam, m)
+                if progress is not None:
+                    progress.update(1)
+            return cache[key]
+
+        return energy
+
+    e_at = cached(ev)
 
     # the other published set of universal hoppings, with its own closure fitted to the same bulk modulus, is part
     # of the verdict's uncertainty range (fixed-cell families only)
     alt = context.alternative_energetics if family.strain_axis is None else None
-    ev_alt, cache_alt = None, {}
+    ev_alt, e_alt = None, None
     if alt is not None:
         # two separate checks, not their cross product: the closure's range with the parent's own hoppings, and
         # the other hopping set with its nominal closure
         ev_alt = _Evaluator(family, context.alternative_params, alt.repulsion_eV, alt.pair_exponent, settings,
                             bonds=ev.bonds, reference_rotations=ev.reference_rotations,
                             ensemble=alt.ensemble[len(alt.ensemble) // 2:len(alt.ensemble) // 2 + 1])
-
-    def e_alt(lam: float, m):
-        key = (round(float(lam), 10), tuple(m))
-        if key not in cache_alt:
-            cache_alt[key] = ev_alt.energies(lam, m)
-            if progress is not None:
-                progress.update(1)
-        return cache_alt[key]
+        e_alt = cached(ev_alt)
 
     e0b, e0e, _, _ = e_at(0.0)
     step = lams[1]
