@@ -1,0 +1,372 @@
+"""Is an observed distortion driven by the bands? Parent → observed structure along a straight path.
+
+The parent (found by `structure.idealise.find_parents`, or given) is written in the observed primitive cell with
+the observed atom order; the path r(λ) = r_parent + λ (r_observed − r_parent) moves positions and cell together
+(λ = 0 parent, 1 observed, up to 1.5), with the parent's bond set followed to the moving atoms, so short and long
+bonds of an alternated network both stay in the model. Band energy on one mesh for every λ; elastic energy from
+the parent's closure (`screen.parent.parent_energetics`, the same fit and uncertainty range as `rank`).
+
+Attribution (issue 11): ``band-driven`` when the total energy (bands + closure) at the observed structure lies
+below the parent's and the model's optimum along the path lies within 0.5–1.5 of the observed amplitude;
+``band-assisted`` when the model gains along the path but its optimum lies elsewhere; ``not band-driven`` when
+the model gains nothing along the path. Each member of the closure's range gets its own attribution.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.linalg import polar
+from scipy.optimize import minimize_scalar
+
+from screener.errors import StructureError
+from screener.structure.crystal import Crystal
+
+#: λ of the path: parent 0, observed 1, beyond to 1.5 (issue 11).
+PATH_LAMBDA = np.round(np.linspace(0.0, 1.5, 16), 6)
+#: The optimum must lie within this range of the observed amplitude for 'band-driven' (issue 11).
+BAND_DRIVEN_RANGE = (0.5, 1.5)
+
+
+@dataclass(frozen=True, eq=False)
+class PathEnergies:
+    """Energies along the straight path parent → observed."""
+
+    lambda_: tuple[float, ...]
+    """Path coordinate λ (0 parent, 1 observed)."""
+    delta_E_band_meV_per_atom: tuple[float, ...]
+    """Band energy relative to the parent, meV/atom."""
+    delta_E_elastic_meV_per_atom: tuple[float, ...]
+    """Elastic energy of the nominal closure relative to the parent, meV/atom."""
+    delta_E_meV_per_atom: tuple[float, ...]
+    """Total, meV/atom."""
+    member_delta_E_meV_per_atom: tuple[tuple[float, ...], ...]
+    """Total for each member of the closure's range (ParentEnergetics.ensemble order), meV/atom."""
+    member_labels: tuple[str, ...]
+    """Labels of those members."""
+    optimum_lambda: float
+    """λ of the nominal total's minimum (0: no gain)."""
+    member_optimum_lambda: tuple[float, ...]
+    """λ of each member's minimum on the grid, parabola-refined."""
+    kmesh: tuple[int, int, int]
+    """k-mesh used at every λ."""
+
+
+@dataclass(frozen=True, eq=False)
+class ExplainResult:
+    """Everything `explain` found."""
+
+    parent_symbol: str
+    """Space group of the parent."""
+    parent_number: int
+    """Its number."""
+    index: int
+    """Group–subgroup index observed ⊂ parent."""
+    chain: tuple[tuple[str, int], ...]
+    """(space group, index) of every parent found, lowest first."""
+    parent_structure: Crystal = field(repr=False)
+    """The parent in the observed primitive cell and atom order."""
+    observed_structure: Crystal = field(repr=False)
+    """The observed primitive cell."""
+    modes: tuple[tuple[str, float], ...] = ()
+    """(pattern, amplitude in Å) of the orthonormal decomposition of the displacement."""
+    strain: np.ndarray = None
+    """(3, 3) symmetric cell strain observed relative to parent."""
+    path: PathEnergies = None
+    """Energies along the path."""
+    bonds: tuple[dict, ...] = ()
+    """Per distinct bond: lengths and band-energy shares in parent and observed structure."""
+    attribution: str = ""
+    """'band-driven', 'band-assisted' or 'not band-driven'."""
+    member_attributions: tuple[str, ...] = ()
+    """Attribution under each member of the closure's range."""
+    reasons: tuple[str, ...] = ()
+    """Why, in words."""
+
+    def as_dict(self) -> dict:
+        """JSON-ready dictionary (keys of the `screener explain --json` output)."""
+        p = self.path
+        return {
+            "parent": {"space_group": self.parent_symbol, "space_group_number": self.parent_number,
+                       "structure": _crystal_dict(self.parent_structure)},
+            "index": self.index,
+            "chain": [{"space_group": s, "index": i} for s, i in self.chain],
+            "modes": [{"pattern": n, "amplitude_A": a} for n, a in self.modes],
+            "strain": np.asarray(self.strain).round(6).tolist(),
+            "path": {"lambda": list(p.lambda_), "delta_E_band_meV_per_atom": list(p.delta_E_band_meV_per_atom),
+                     "delta_E_elastic_meV_per_atom": list(p.delta_E_elastic_meV_per_atom),
+                     "delta_E_meV_per_atom": list(p.delta_E_meV_per_atom), "kmesh": list(p.kmesh)},
+            "optimum_lambda": p.optimum_lambda,
+            "member_optimum_lambda": list(p.member_optimum_lambda),
+            "bonds": list(self.bonds),
+            "attribution": self.attribution,
+            "member_attributions": list(self.member_attributions),
+            "reasons": list(self.reasons),
+        }
+
+
+def _crystal_dict(c: Crystal) -> dict:
+    return {"lattice_A": np.round(c.lattice_A, 6).tolist(), "frac": np.round(c.frac, 6).tolist(),
+            "species": list(c.species)}
+
+
+def _interpolate(parent: Crystal, observed: Crystal, lam: float) -> tuple[Crystal, np.ndarray]:
+    """Structure at λ and the integer shift its wrapping applied to each atom."""
+    d = observed.frac - parent.frac
+    d -= np.rint(d)
+    lat = parent.lattice_A + lam * (observed.lattice_A - parent.lattice_A)
+    frac = parent.frac + lam * d
+    c = Crystal(lat, frac, parent.species, parent.labels, min_distance_A=min(parent.min_distance_A, 0.3))
+    return c, np.rint(frac - c.frac).astype(int)
+
+
+def _vertex(x, y) -> float:
+    """x of the minimum of y on grid x, refined by the parabola through its neighbours."""
+    j = int(np.argmin(y))
+    if 0 < j < len(y) - 1:
+        (x0, x1, x2), (y0, y1, y2) = x[j - 1:j + 2], y[j - 1:j + 2]
+        den = (x0 - x1) * (x0 - x2) * (x1 - x2)
+        a = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / den
+        b = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / den
+        if a > 0:
+            return float(np.clip(-b / (2 * a), x0, x2))
+    return float(x[j])
+
+
+class _Path:
+    """Band and elastic energies at any λ, on one mesh, with the parent's bonds followed."""
+
+    def __init__(self, context, observed: Crystal, mesh):
+        from screener.screen.closure import elastic_model_for
+
+        self.context, self.observed, self.mesh = context, observed, mesh
+        self.parent = context.crystal
+        en = context.energetics
+        self.members = [elastic_model_for(self.parent, context.params, context.bonds, a, m)
+                        for _, a, m in en.ensemble]
+        self.labels = tuple(lab for lab, _, _ in en.ensemble)
+        self.nominal = len(self.members) // 2
+        d = observed.frac - self.parent.frac
+        d -= np.rint(d)
+        self.dmax_A = float(np.max(np.linalg.norm(d @ self.parent.lattice_A, axis=1)))
+        self._cache = {}
+
+    def structure(self, lam):
+        from screener.screen.generators import follow_bonds
+        from screener.tb.bonds import BondList
+
+        c, shift = _interpolate(self.parent, self.observed, lam)
+        b = self.context.bonds
+        return c, shift, BondList(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
+
+    def energies(self, lam: float) -> tuple[float, np.ndarray]:
+        """(band energy per atom, elastic energy per atom of each member), eV."""
+        key = round(float(lam), 9)
+        if key not in self._cache:
+            from screener.bz.integrate import solve_on_mesh
+            from screener.screen.generators import follow_bonds
+            from screener.tb.model import build_model
+
+            c, shift, bonds = self.structure(lam)
+            model = build_model(c, self.context.params, bonds=bonds)
+            s = self.context.settings
+            symprec = s.symprec_A if lam == 0 else min(s.symprec_A, 0.1 * lam * self.dmax_A)
+            rot = self.context.symmetry.rotations if lam == 0 else None
+            res = solve_on_mesh(model, self.mesh, method=s.method, width_eV=s.width_eV, symprec=symprec,
+                                rotations=rot)
+            n = c.n_atoms
+            el = np.array([e.energy_eV(c.lattice_A, c.frac, follow_bonds(e.i, e.j, e.image, shift)) / n
+                           for e in self.members])
+            self._cache[key] = (res.band_energy_eV / n, el)
+        return self._cache[key]
+
+
+def energy_along_path(context, observed: Crystal, lambdas=PATH_LAMBDA, mesh=None) -> PathEnergies:
+    """Band, elastic and total energy along parent (``context.crystal``, λ = 0) → ``observed`` (λ = 1)."""
+    from screener.bz.kmesh import mesh_from_spacing
+
+    s = context.settings
+    if mesh is None:
+        mesh = mesh_from_spacing(context.crystal, s.k_step_per_A * s.refine_factor**2, context.model.periodic)
+    path = _Path(context, observed, mesh)
+    lams = np.asarray(lambdas, dtype=float)
+    rows = [path.energies(x) for x in lams]
+    band = np.array([r[0] for r in rows])
+    el = np.array([r[1] for r in rows])  # (nλ, members)
+    d_band = (band - band[0]) * 1e3
+    d_el = (el - el[0]) * 1e3
+    totals = d_band[:, None] + d_el
+    k = path.nominal
+    tot = totals[:, k]
+    tol = s.stable_tolerance_meV_per_atom
+    j = int(np.argmin(tot))
+    if tot[j] > -tol:
+        opt = 0.0
+    elif 0 < j < len(lams) - 1:
+        f = lambda x: sum((np.array([path.energies(x)[0]]) * 1e3 - band[0] * 1e3).tolist()) + (  # noqa: E731
+            path.energies(x)[1][k] - el[0, k]) * 1e3
+        r = minimize_scalar(f, bounds=(lams[j - 1], lams[j + 1]), method="bounded", options={"xatol": 1e-3})
+        opt = float(r.x) if r.fun < tot[j] else float(lams[j])
+    else:
+        opt = float(lams[j])
+    member_opt = tuple(0.0 if totals[:, m].min() > -tol else _vertex(lams, totals[:, m])
+                       for m in range(totals.shape[1]))
+    return PathEnergies(
+        lambda_=tuple(float(x) for x in lams), delta_E_band_meV_per_atom=tuple(float(x) for x in d_band),
+        delta_E_elastic_meV_per_atom=tuple(float(x) for x in d_el[:, k]),
+        delta_E_meV_per_atom=tuple(float(x) for x in tot),
+        member_delta_E_meV_per_atom=tuple(tuple(float(x) for x in totals[:, m]) for m in range(totals.shape[1])),
+        member_labels=path.labels, optimum_lambda=opt, member_optimum_lambda=member_opt, kmesh=tuple(mesh),
+    )
+
+
+def decompose(parent: Crystal, observed: Crystal) -> tuple[tuple[tuple[str, float], ...], np.ndarray]:
+    """Orthonormal split of the displacement observed − parent, with amplitudes in Å, and the cell strain.
+
+    The patterns are the displacement restricted to each set of symmetry-equivalent atoms of the parent (these
+    restrictions are mutually orthogonal); each is normalised to one and its amplitude is the root of the summed
+    squared displacements of its atoms, Å, so the amplitudes add in quadrature to the whole displacement. The
+    strain is the symmetric ε = U − 1 of observed lattice = parent lattice · (rotation) · U.
+    """
+    from screener.structure.symmetry import analyse
+
+    d = observed.frac - parent.frac
+    d -= np.rint(d)
+    disp = d @ parent.lattice_A
+    info = analyse(parent, 1e-4)
+    modes = []
+    for rep in np.unique(info.equivalent_atoms):
+        sel = info.equivalent_atoms == rep
+        amp = float(np.sqrt(np.sum(disp[sel] ** 2)))
+        if amp > 1e-6:
+            modes.append((f"{parent.species[rep]} {info.wyckoff[rep]} ({np.count_nonzero(sel)} atoms)", amp))
+    _, u = polar(np.linalg.solve(parent.lattice_A, observed.lattice_A))
+    return tuple(modes), u - np.eye(3)
+
+
+def project_on_generator_patterns(*args, **kwargs):
+    """Projection of the displacement on the candidate generators' and soft-mode patterns (issue 11, item 2)."""
+    raise NotImplementedError("projection on the candidate generators' and soft-mode patterns is not written yet; "
+                              "`decompose` splits the displacement by parent site orbits instead")
+
+
+def bond_table(context, observed: Crystal, mesh) -> tuple[dict, ...]:
+    """Per distinct bond (element pair, length in parent, length observed): count and band-energy shares."""
+    from screener.screen.generators import follow_bonds
+    from screener.tb.bond_energy import bond_energies
+    from screener.tb.bonds import BondList
+    from screener.tb.model import build_model
+
+    parent = context.crystal
+    out = {}
+    res = []
+    for lam in (0.0, 1.0):
+        c, shift = _interpolate(parent, observed, lam)
+        b = context.bonds
+        bonds = BondList(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
+        res.append(bond_energies(build_model(c, context.params, bonds=bonds), mesh))
+    b = context.bonds
+    for k in range(len(b)):
+        pair = "-".join(sorted((parent.species[b.i[k]], parent.species[b.j[k]])))
+        key = (pair, round(float(res[0].bond_length_A[k]), 3), round(float(res[1].bond_length_A[k]), 3))
+        out.setdefault(key, []).append(k)
+    table = []
+    for (pair, d0, d1), ks in sorted(out.items(), key=lambda kv: kv[0][2]):
+        k0 = ks[0]
+        table.append({
+            "pair": pair, "count_per_cell": len(ks), "length_parent_A": d0, "length_observed_A": d1,
+            "bond_energy_eV": {"parent": float(np.mean(res[0].bond_energy_eV[ks])),
+                               "observed": float(np.mean(res[1].bond_energy_eV[ks]))},
+            "bond_character_at_EF": {"parent": res[0].bond_character_at_EF[k0],
+                                     "observed": res[1].bond_character_at_EF[k0]},
+            "bond_population_at_EF_per_eV": {"parent": float(np.mean(res[0].bond_population_at_EF_per_eV[ks])),
+                                             "observed": float(np.mean(res[1].bond_population_at_EF_per_eV[ks]))},
+        })
+    return tuple(table)
+
+
+def attribute(delta_E_at_observed: float, min_delta_E: float, optimum_lambda: float, tol: float) -> str:
+    """The attribution rule of the module docstring for one closure."""
+    if min_delta_E > -tol or optimum_lambda == 0.0:
+        return "not band-driven"
+    lo, hi = BAND_DRIVEN_RANGE
+    if delta_E_at_observed < 0 and lo <= optimum_lambda <= hi and optimum_lambda < PATH_LAMBDA[-1]:
+        return "band-driven"
+    return "band-assisted"
+
+
+def parent_in_cell(parent: Crystal, observed: Crystal) -> Crystal:
+    """A given parent expressed in the observed cell and atom order (same orientation required)."""
+    m = observed.lattice_A @ np.linalg.inv(parent.lattice_A)
+    mi = np.rint(m)
+    if np.max(np.abs(m - mi)) > 0.2 or round(abs(np.linalg.det(mi))) * parent.n_atoms != observed.n_atoms:
+        raise StructureError(
+            "the parent's cell is not a sublattice of the observed one in the same orientation "
+            f"(observed = M x parent with M = {np.round(m, 3).tolist()}); write both in the same axes")
+    sup = parent.supercell(mi.astype(int))
+    diff = observed.frac[:, None, :] - sup.frac[None, :, :]
+    diff -= np.rint(diff)
+    dist = np.linalg.norm(diff @ sup.lattice_A, axis=2)
+    dist[np.array(observed.species)[:, None] != np.array(sup.species)[None, :]] = np.inf
+    match = np.argmin(dist, axis=1)
+    if len(set(match.tolist())) != len(match):
+        raise StructureError("could not match the observed atoms one to one onto the parent's sites")
+    return Crystal(sup.lattice_A, sup.frac[match], observed.species, observed.labels,
+                   min_distance_A=observed.min_distance_A)
+
+
+def explain(crystal: Crystal, parent: Crystal | None = None, params=None, settings=None,
+            max_displacement_A: float | None = None, max_strain: float | None = None) -> ExplainResult:
+    """Parent, decomposition, energy along the path, bond shares and attribution (see module docstring)."""
+    from screener.bz.kmesh import mesh_from_spacing
+    from screener.screen.parent import build_parent
+    from screener.screen.settings import ScreenSettings
+    from screener.structure import idealise
+    from screener.structure.symmetry import analyse, standard_primitive
+
+    settings = settings or ScreenSettings()
+    if parent is None:
+        search = idealise.find_parents(
+            crystal, max_displacement_A or idealise.MAX_DISPLACEMENT_A,
+            idealise.MAX_STRAIN if max_strain is None else max_strain, symprec=settings.symprec_A)
+        top = search.highest
+        observed, parent_cell = search.observed_primitive, top.in_observed_cell
+        symbol, number, index = top.space_group_symbol, top.space_group_number, top.index
+        chain = tuple((c.space_group_symbol, c.index) for c in search.chain)
+    else:
+        observed = standard_primitive(crystal, analyse(crystal, settings.symprec_A)).crystal
+        parent_cell = parent_in_cell(parent, observed)
+        pinfo = analyse(parent_cell, settings.symprec_A)
+        oinfo = analyse(observed, settings.symprec_A)
+        symbol, number = pinfo.symbol, pinfo.number
+        pg = lambda info: len(np.unique(info.rotations.reshape(len(info.rotations), -1), axis=0))  # noqa: E731
+        index = int(round(pg(pinfo) / pg(oinfo) * observed.n_atoms / pinfo.primitive_atoms))
+        chain = ((symbol, index),)
+    context = build_parent(parent_cell, params, settings, standardise=False)
+    modes, strain = decompose(parent_cell, observed)
+    path = energy_along_path(context, observed)
+    mesh = mesh_from_spacing(parent_cell, settings.k_step_per_A * settings.refine_factor, context.model.periodic)
+    bonds = bond_table(context, observed, mesh)
+    tol = settings.stable_tolerance_meV_per_atom
+    i1 = path.lambda_.index(1.0)
+    members = tuple(attribute(row[i1], min(row), opt, tol)
+                    for row, opt in zip(path.member_delta_E_meV_per_atom, path.member_optimum_lambda, strict=True))
+    nominal = attribute(path.delta_E_meV_per_atom[i1], min(path.delta_E_meV_per_atom), path.optimum_lambda, tol)
+    reasons = [
+        f"band energy at the observed structure {path.delta_E_band_meV_per_atom[i1]:+.1f} meV/atom, elastic cost "
+        f"{path.delta_E_elastic_meV_per_atom[i1]:+.1f} meV/atom, total {path.delta_E_meV_per_atom[i1]:+.1f} "
+        "meV/atom relative to the parent",
+        f"the model's optimum along the path lies at λ = {path.optimum_lambda:.2f} of the observed distortion "
+        f"(band-driven needs {BAND_DRIVEN_RANGE[0]}–{BAND_DRIVEN_RANGE[1]})",
+    ]
+    if len(set(members)) > 1:
+        reasons.append("the answer depends on the elastic closure's uncertainty: "
+                       + ", ".join(f"{lab}: {a}" for lab, a in zip(path.member_labels, members, strict=True)))
+    else:
+        reasons.append(f"the same answer for every member of the closure's range ({len(members)} members)")
+    return ExplainResult(
+        parent_symbol=symbol, parent_number=number, index=index, chain=chain, parent_structure=parent_cell,
+        observed_structure=observed, modes=modes, strain=strain, path=path, bonds=bonds, attribution=nominal,
+        member_attributions=members, reasons=tuple(reasons),
+    )
