@@ -1,0 +1,73 @@
+"""`explain`: is an observed distortion driven by the bands?"""
+
+import numpy as np
+import pytest
+
+from screener import read_structure
+from screener.screen.explain import explain
+from screener.structure.crystal import Crystal
+from screener.tb.param_file import load_parameters
+
+# Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
+SSH_TOML = """
+[species.C]
+orbitals = ["pz"]
+onsite_eV = { pz = 0.0 }
+valence_electrons = 1
+
+[bond."C-C"]
+law = "linear"
+r0_A = 1.22
+V_eV = { pp_pi = -2.5 }
+slope_eV_per_A = { pp_pi = 4.1 }
+cutoff_A = 1.6
+spring_eV_per_A2 = 21.0
+"""
+
+
+def test_a7_arsenic_explained():
+    # Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969)
+    r = explain(read_structure("tests/data/As_A7_rhombohedral.cif"))
+    assert r.parent_symbol == "Pm-3m"
+    assert r.index == 8  # International Tables A1: Pm-3m > R-3m (t4) with the cell halved (k2)
+    assert r.path.lambda_[0] == 0 and r.path.lambda_[-1] == 1.5
+    # 3 short + 3 long bonds kept (parent's six bonds followed)
+    assert [b["count_per_cell"] for b in r.bonds] == [3, 3]
+    short, long_ = r.bonds
+    assert short["bond_energy_eV"]["observed"] < short["bond_energy_eV"]["parent"]
+    assert long_["bond_energy_eV"]["observed"] > long_["bond_energy_eV"]["parent"]
+    # the model (not tuned) puts the optimum within 0.5-1.5 of the observed distortion: band-driven
+    assert 0.5 <= r.path.optimum_lambda <= 1.5
+    assert r.attribution == "band-driven"
+    d = r.as_dict()
+    assert set(d) >= {"parent", "index", "modes", "path", "optimum_lambda", "bonds", "attribution", "reasons"}
+    assert d["modes"][0]["amplitude_A"] > 0
+
+
+def test_ssh_chain_is_band_driven(tmp_path):
+    p = tmp_path / "ssh.toml"
+    p.write_text(SSH_TOML)
+    params = load_parameters(p, ["C"])
+    a, u = 1.22, 0.04  # Su, Schrieffer & Heeger (1980): u0 ≈ 0.04 Å
+    chain = Crystal(np.diag([2 * a, 10.0, 10.0]), [[0, 0, 0], [(a + 2 * u) / (2 * a), 0, 0]], ["C", "C"])
+    r = explain(chain, params=params)
+    assert r.index == 2  # uniform chain: the cell halves
+    assert r.attribution == "band-driven"
+    # optimum near u0 = 0.04 Å, i.e. near λ = 1 (SSH 1980)
+    assert r.path.optimum_lambda == pytest.approx(1.0, abs=0.3)
+
+
+def test_off_centre_ion_in_rocksalt_halide_is_not_band_driven():
+    # invented: NaCl rocksalt (tests/data/known_phases) with Cl pushed 0.15 Å along [111]
+    c = read_structure("tests/data/known_phases/NaCl_rocksalt.cif")
+    from screener.structure.symmetry import analyse, standard_primitive
+
+    prim = standard_primitive(c, analyse(c)).crystal
+    k = prim.species.index("Cl")
+    shift = np.array([1, 1, 1]) / np.sqrt(3) * 0.15 @ np.linalg.inv(prim.lattice_A)
+    frac = prim.frac.copy()
+    frac[k] += shift
+    pushed = Crystal(prim.lattice_A, frac, prim.species)
+    r = explain(pushed)
+    assert r.parent_symbol == "Fm-3m"
+    assert r.attribution == "not band-driven"
