@@ -370,3 +370,36 @@ def explain(crystal: Crystal, parent: Crystal | None = None, params=None, settin
         observed_structure=observed, modes=modes, strain=strain, path=path, bonds=bonds, attribution=nominal,
         member_attributions=members, reasons=tuple(reasons),
     )
+
+
+def bond_curves(result: ExplainResult, params=None, settings=None, n_energies: int = 301):
+    """Energy-resolved band-energy shares of the two bonds whose shares differ most at the observed structure.
+
+    Returns (energies in eV, Fermi level in eV, [(label, population per eV) × 2]).
+    """
+    from screener.bz.kmesh import mesh_from_spacing
+    from screener.screen.generators import follow_bonds
+    from screener.screen.parent import build_parent
+    from screener.screen.settings import ScreenSettings
+    from screener.tb.bond_energy import bond_energies
+    from screener.tb.bonds import BondList
+    from screener.tb.model import build_model
+
+    settings = settings or ScreenSettings()
+    context = build_parent(result.parent_structure, params, settings, standardise=False)
+    c, shift = _interpolate(context.crystal, result.observed_structure, 1.0)
+    b = context.bonds
+    model = build_model(c, context.params, bonds=BondList(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift)))
+    mesh = mesh_from_spacing(context.crystal, settings.k_step_per_A * settings.refine_factor, model.periodic)
+    first = bond_energies(model, mesh)
+    lo, hi = int(np.argmin(first.bond_energy_eV)), int(np.argmax(first.bond_energy_eV))
+    ev = np.linalg.eigvalsh(model.hamiltonian(np.zeros((1, 3))))
+    span = ev.max() - ev.min()
+    grid = np.linspace(ev.min() - 0.3 * span, ev.max() + 0.5 * span, n_energies)
+    res = bond_energies(model, mesh, energies_eV=grid)
+    curves = []
+    for k in (lo, hi):
+        label = (f"{c.species[b.i[k]]}–{c.species[b.j[k]]} {res.bond_length_A[k]:.3f} Å "
+                 f"(share {res.bond_energy_eV[k]:.2f} eV)")
+        curves.append((label, res.bond_population_per_eV[:, k]))
+    return grid, res.fermi_level_eV, curves

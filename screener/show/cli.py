@@ -418,7 +418,71 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", default="screener-report", help="report folder (default ./screener-report)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_demo)
+    p = sub.add_parser("explain", help="is an observed bond alternation driven by the bands? parent, path, bonds")
+    _add_structure_args(p)
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--parent", help="parent structure file (default: the highest-symmetry parent found)")
+    p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
+    p.add_argument("--plot", metavar="DIR", help="write the path-energy and bond figures into this folder")
+    p.add_argument("--max-displacement", type=float, default=None,
+                   help="largest atomic displacement to the parent, Å (default 0.4)")
+    p.add_argument("--max-strain", type=float, default=None, help="largest lattice strain to the parent (default 0.08)")
+    p.set_defaults(func=cmd_explain)
     return parser
+
+
+# ---------------------------------------------------------------------------------------------- explain
+def cmd_explain(args) -> int:
+    """Is an observed distortion driven by the bands? Parent, path energies, bond shares and an attribution."""
+    from pathlib import Path
+
+    from screener.screen.explain import bond_curves, explain
+    from screener.structure.formats import read_structure
+
+    if args.plot and Path(args.plot).exists() and not Path(args.plot).is_dir():
+        raise ScreenerError(f"--plot {args.plot} is a file; give a folder for the figures")
+    crystal = _read(args)
+    parent = read_structure(args.parent) if args.parent else None
+    params = _parameters_for(crystal, args.params)
+    from screener.screen.settings import ScreenSettings
+
+    settings = ScreenSettings(symprec_A=args.symprec)
+    result = explain(crystal, parent=parent, params=params, settings=settings,
+                     max_displacement_A=args.max_displacement, max_strain=args.max_strain)
+    written = []
+    if args.plot:
+        from screener.show.figures import plot_bond_curves, plot_explain_path
+
+        out = Path(args.plot)
+        out.mkdir(parents=True, exist_ok=True)
+        written.append(plot_explain_path(result, out / "path_energy.png"))
+        grid, ef, curves = bond_curves(result, params, settings)
+        written.append(plot_bond_curves(grid, ef, curves, out / "bond_curves.png"))
+    if args.json:
+        d = result.as_dict()
+        d["file"] = str(args.file)
+        if written:
+            d["figures"] = [str(w) for w in written]
+        _print_json(d)
+        return 0
+    p = result.path
+    i1 = p.lambda_.index(1.0)
+    lines = [f"{args.file}: parent {result.parent_symbol} (index {result.index}; chain "
+             + " → ".join(f"{s} [{i}]" for s, i in result.chain) + ")",
+             "distortion: " + ", ".join(f"{n} {a:.3f} Å" for n, a in result.modes),
+             f"path λ = 1 (observed): ΔE band {p.delta_E_band_meV_per_atom[i1]:+.1f}, elastic "
+             f"{p.delta_E_elastic_meV_per_atom[i1]:+.1f}, total {p.delta_E_meV_per_atom[i1]:+.1f} meV/atom; "
+             f"model optimum λ = {p.optimum_lambda:.2f}",
+             "bonds (length parent → observed, share of the band energy, character at E_F):"]
+    for b in result.bonds:
+        lines.append(f"  {b['pair']} ×{b['count_per_cell']}: {b['length_parent_A']:.3f} → {b['length_observed_A']:.3f} Å,"
+                     f" {b['bond_energy_eV']['parent']:.2f} → {b['bond_energy_eV']['observed']:.2f} eV,"
+                     f" {b['bond_character_at_EF']['parent']} → {b['bond_character_at_EF']['observed']}")
+    lines.append(f"attribution: {result.attribution}")
+    lines += [f"  - {r}" for r in result.reasons]
+    lines += [f"wrote {w}" for w in written]
+    print("\n".join(lines))
+    return 0
 
 
 def main(argv=None) -> int:

@@ -366,3 +366,46 @@ def plot_band_structure(bs: BandStructure, out_png, title: str | None = None) ->
                  f"$E_\\mathrm{{F}} = {result.fermi_level_eV:.3f}$ eV")
     return plot_bands(bs.path, bs.energies_eV, result.fermi_level_eV, out_png, character=bs.character,
                       character_labels=list(bs.shells), dos=dos, title=title)
+
+
+def plot_explain_path(result, out_png) -> Path:
+    """Band, elastic and total energy along the path parent (λ = 0) → observed (λ = 1), observed marked."""
+    p = result.path
+    fig = _new_figure((6.0, 4.2))
+    ax = fig.add_subplot()
+    lam = np.asarray(p.lambda_)
+    if p.member_delta_E_meV_per_atom:
+        m = np.asarray(p.member_delta_E_meV_per_atom)
+        ax.fill_between(lam, m.min(axis=0), m.max(axis=0), color=CURVE_COLOURS[0], alpha=0.2, lw=0,
+                        label="total, closure range")
+    for k, (y, name) in enumerate(((p.delta_E_meV_per_atom, "total"), (p.delta_E_band_meV_per_atom, "band"),
+                                   (p.delta_E_elastic_meV_per_atom, "elastic"))):
+        colour, marker = curve_style(k)
+        ax.plot(lam, y, color=colour, marker=marker, ms=4, label=name)
+    ax.axvline(1.0, color="0.3", ls="--", lw=1)
+    ax.annotate("observed", (1.0, ax.get_ylim()[1]), xytext=(3, -12), textcoords="offset points", fontsize=8)
+    if p.optimum_lambda > 0:
+        ax.axvline(p.optimum_lambda, color=CURVE_COLOURS[0], ls=":", lw=1, label=f"model optimum λ = "
+                   f"{p.optimum_lambda:.2f}")
+    ax.axhline(0.0, color="0.6", lw=0.6)
+    ax.set_xlabel("path coordinate λ (0 parent, 1 observed)")
+    ax.set_ylabel(DELTA_E_LABEL)
+    ax.set_title(f"{result.parent_symbol} parent → observed: {result.attribution}", fontsize=10)
+    ax.legend(fontsize=8)
+    return _save(fig, out_png)
+
+
+def plot_bond_curves(energies_eV, fermi_level_eV: float, curves, out_png) -> Path:
+    """Energy-resolved band-energy share (bond population) of bonds against energy; negative = bonding."""
+    fig = _new_figure((4.8, 5.0))
+    ax = fig.add_subplot()
+    for k, (label, y) in enumerate(curves):
+        colour, _ = curve_style(k)
+        ax.plot(-np.asarray(y), energies_eV, color=colour, label=label)
+    ax.axhline(fermi_level_eV, color="0.3", ls="--", lw=1)
+    ax.annotate("$E_\\mathrm{F}$", (ax.get_xlim()[1], fermi_level_eV), xytext=(-18, 3), textcoords="offset points")
+    ax.axvline(0.0, color="0.6", lw=0.6)
+    ax.set_xlabel("− bond population (eV per eV per cell; right = bonding)")
+    ax.set_ylabel("energy E (eV)")
+    ax.legend(fontsize=7, loc="lower right")
+    return _save(fig, out_png)

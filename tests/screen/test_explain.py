@@ -71,3 +71,47 @@ def test_off_centre_ion_in_rocksalt_halide_is_not_band_driven():
     r = explain(pushed)
     assert r.parent_symbol == "Fm-3m"
     assert r.attribution == "not band-driven"
+
+
+def test_cli_explain_json_and_figures(tmp_path, capsys):
+    import json
+
+    from screener.show.cli import main
+
+    # Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969)
+    code = main(["explain", "tests/data/As_A7_hexagonal.cif", "--json", "--plot", str(tmp_path / "figs")])
+    assert code == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["parent"]["space_group"] == "Pm-3m" and d["index"] == 8
+    assert set(d["path"]) >= {"lambda", "delta_E_band_meV_per_atom", "delta_E_elastic_meV_per_atom",
+                              "delta_E_meV_per_atom"}
+    assert len(d["path"]["lambda"]) == len(d["path"]["delta_E_meV_per_atom"])
+    assert (tmp_path / "figs" / "path_energy.png").stat().st_size > 1000
+    assert (tmp_path / "figs" / "bond_curves.png").stat().st_size > 1000
+
+
+def test_given_parent_gives_the_same_answer(tmp_path, capsys):
+    import json
+
+    from screener import write_structure
+    from screener.show.cli import main
+
+    # Schiferl & Barrett, J. Appl. Cryst. 2, 30 (1969): the parent found, written out and given back
+    found = explain(read_structure("tests/data/As_A7_rhombohedral.cif"))
+    write_structure(found.parent_structure, tmp_path / "parent.json")
+    code = main(["explain", "tests/data/As_A7_rhombohedral.cif", "--parent", str(tmp_path / "parent.json"), "--json"])
+    assert code == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["parent"]["space_group"] == "Pm-3m" and d["index"] == 8
+    assert d["attribution"] == found.attribution
+    assert d["optimum_lambda"] == pytest.approx(found.path.optimum_lambda, abs=1e-3)
+
+
+def test_cli_explain_bad_parent_is_one_line_error(tmp_path, capsys):
+    from screener.show.cli import main
+
+    bad = tmp_path / "bad.cif"
+    bad.write_text("not a cif\n")
+    code = main(["explain", "tests/data/As_A7_rhombohedral.cif", "--parent", str(bad)])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(err) == 1 and "bad.cif" in err[0]
