@@ -204,8 +204,10 @@ def energy_along_path(context, observed: Crystal, lambdas=PATH_LAMBDA, mesh=None
     if tot[j] > -tol:
         opt = 0.0
     elif 0 < j < len(lams) - 1:
-        f = lambda x: sum((np.array([path.energies(x)[0]]) * 1e3 - band[0] * 1e3).tolist()) + (  # noqa: E731
-            path.energies(x)[1][k] - el[0, k]) * 1e3
+        def f(x):
+            b, e = path.energies(x)
+            return (b - band[0]) * 1e3 + (e[k] - el[0, k]) * 1e3
+
         r = minimize_scalar(f, bounds=(lams[j - 1], lams[j + 1]), method="bounded", options={"xatol": 1e-3})
         opt = float(r.x) if r.fun < tot[j] else float(lams[j])
     else:

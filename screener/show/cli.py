@@ -475,7 +475,8 @@ def cmd_explain(args) -> int:
              f"model optimum λ = {p.optimum_lambda:.2f}",
              "bonds (length parent → observed, share of the band energy, character at E_F):"]
     for b in result.bonds:
-        lines.append(f"  {b['pair']} ×{b['count_per_cell']}: {b['length_parent_A']:.3f} → {b['length_observed_A']:.3f} Å,"
+        lines.append(f"  {b['pair']} ×{b['count_per_cell']}: {b['length_parent_A']:.3f} → "
+                     f"{b['length_observed_A']:.3f} Å,"
                      f" {b['bond_energy_eV']['parent']:.2f} → {b['bond_energy_eV']['observed']:.2f} eV,"
                      f" {b['bond_character_at_EF']['parent']} → {b['bond_character_at_EF']['observed']}")
     lines.append(f"attribution: {result.attribution}")

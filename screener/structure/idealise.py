@@ -92,9 +92,13 @@ def _n_primitive(ds) -> int:
 def _lattice_groups(lattice_A: np.ndarray, max_strain: float) -> list[tuple[int, np.ndarray]]:
     """Symmetrised lattices (input basis) for each group of near-symmetries within ``max_strain``.
 
-    Returns (operations W on lattice rows, lattice) by increasing order; the lattices keep the input's orientation (polar part).
+    Returns (operations W on the input's lattice rows, lattice) by increasing order; the lattices keep the input's
+    orientation (polar part).
     """
-    red = np.asarray(spglib.niggli_reduce(lattice_A, eps=1e-5), dtype=float)
+    red = spglib.niggli_reduce(lattice_A, eps=1e-5)
+    if red is None:
+        raise StructureError("the cell could not be reduced to its shortest basis; check the lattice parameters")
+    red = np.asarray(red, dtype=float)
     t = np.rint(lattice_A @ np.linalg.inv(red))
     g = red @ red.T
     mats = np.array(list(itertools.product((-1, 0, 1), repeat=9)), dtype=float).reshape(-1, 3, 3)
