@@ -28,13 +28,12 @@ from fractions import Fraction
 
 import numpy as np
 
+from screener.bz.susceptibility import grid_shift, pair_factor, shifted_index
 from screener.errors import ParameterError
 
 #: Finite-difference step in the bond vector for the first and second derivatives of the two-centre blocks, Å.
 _STEP1_A = 1e-3
 _STEP2_A = 2e-3
-#: Energy difference below which a pair counts as degenerate and takes the df/dε limit, eV.
-_DEGENERATE_EV = 1e-7
 
 
 @dataclass(frozen=True, eq=False)
@@ -155,14 +154,6 @@ class MeshStates:
     """Free energy E − σS per cell of these occupations, eV."""
 
 
-def _grid_index(mesh, shift_addr) -> np.ndarray:
-    """(nk,) index of the mesh point k + shift for every k, both as grid addresses (k + q on the same mesh)."""
-    m = np.asarray(mesh)
-    addr = np.stack(np.meshgrid(*(np.arange(n) for n in mesh), indexing="ij"), -1).reshape(-1, 3)
-    new = np.mod(addr + np.asarray(shift_addr), m)
-    return (new[:, 0] * m[1] + new[:, 1]) * m[2] + new[:, 2]
-
-
 def mesh_states(model, mesh, *, method: str = "fermi-dirac", width_eV: float = 0.05,
                 n_electrons: float | None = None) -> MeshStates:
     """Diagonalise the model once on the full Γ-centred ``mesh`` and occupy the bands (rigid-band ``n_electrons``)."""
@@ -199,27 +190,11 @@ def _reorder(e, grid_address, mesh):
     return e[idx]
 
 
-def _pair_factor(e1, e2, f1, f2, d1, d2) -> np.ndarray:
-    """(f1 − f2)/(e1 − e2) with the df/dε limit (mean of both ends) where the energies (nearly) coincide."""
-    de = e1 - e2
-    close = np.abs(de) < _DEGENERATE_EV
-    safe = np.where(close, 1.0, de)
-    return np.where(close, 0.5 * (d1 + d2), (f1 - f2) / safe)
-
-
 # ---------------------------------------------------------------------------------------------- Φ(q)
-def _q_on_mesh(q, mesh) -> np.ndarray:
-    shift = np.asarray(q, dtype=float) * np.asarray(mesh)
-    if np.max(np.abs(shift - np.round(shift))) > 1e-6:
-        raise ParameterError(f"q = {np.asarray(q).tolist()} is not on the {tuple(mesh)} k-mesh: every mesh size must "
-                             "be a multiple of the denominator of q's component along it")
-    return np.round(shift).astype(int)
-
-
 def band_force_constants(model, states: MeshStates, q_frac) -> np.ndarray:
     """(3N, 3N) complex band part of Φ(q), eV/Å², from the eigenvectors in ``states`` (see module docstring)."""
     q = np.asarray(q_frac, dtype=float)
-    shift = _q_on_mesh(q, states.mesh)
+    shift = grid_shift(states.mesh, q)
     n_atoms = model.crystal.n_atoms
     i, j, image, cart, blocks = _bond_data(model)
     g1, g2 = _block_derivatives(cart, blocks)
@@ -236,10 +211,10 @@ def band_force_constants(model, states: MeshStates, q_frac) -> np.ndarray:
     g1t = np.swapaxes(g1, 2, 3)
     d_op = (np.einsum("kps,paxy->ksaxy", wp, g1) + np.einsum("kps,paxy->ksaxy", wm, g1t))
     d_op = d_op.reshape(nk, 3 * n_atoms, *g1.shape[2:])
-    kq = _grid_index(states.mesh, shift)
+    kq = shifted_index(states.mesh, shift)
     vk, vq = states.vectors, states.vectors[kq]
     mel = np.einsum("kxm,kdxy,kyn->kdmn", np.conj(vq), d_op, vk)  # <m,k+q|D_d|n,k>
-    fac = _pair_factor(states.energies_eV[:, None, :], states.energies_eV[kq][:, :, None],
+    fac = pair_factor(states.energies_eV[:, None, :], states.energies_eV[kq][:, :, None],
                        states.occupations[:, None, :], states.occupations[kq][:, :, None],
                        states.dfde_per_eV[:, None, :], states.dfde_per_eV[kq][:, :, None])  # (nk, m, n)
     resp = g * w * np.einsum("kmn,kamn,kbmn->ab", fac, np.conj(mel), mel)
@@ -306,11 +281,6 @@ def describe_pattern(crystal, pattern, q_frac) -> str:
         parts.append(f"{crystal.labels[s]} along [{', '.join(f'{x + 0.0:.2f}' for x in d)}]")
     kind = "uniform" if not any(q_frac) else "modulated"
     return f"{kind} at q = ({q}): " + "; ".join(parts)
-
-
-def susceptibility(*args, **kwargs):
-    """χ0(q) is in screener.bz.susceptibility (not implemented yet)."""
-    raise NotImplementedError("the bare susceptibility χ0(q) is not implemented yet")
 
 
 def strain_stiffness(*args, **kwargs):
