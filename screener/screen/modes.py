@@ -283,6 +283,80 @@ def describe_pattern(crystal, pattern, q_frac) -> str:
     return f"{kind} at q = ({q}): " + "; ".join(parts)
 
 
+def q_grid(parent, max_denominator: int = 4) -> list[np.ndarray]:
+    """Commensurate q with denominators up to ``max_denominator`` along each bonded direction, one per star.
+
+    Two q are the same when a rotation of the parent (q → Rᵀ q, fractional) or time reversal (q → −q) maps one
+    onto the other modulo the reciprocal lattice. The high-symmetry points with such denominators (Γ, the zone
+    faces and corners, fcc's W = (½, ¼, ¾) …) are on this grid.
+    """
+    n = int(max_denominator)
+    if n < 1:
+        raise ParameterError(f"--q-grid must be a positive integer (largest denominator of q), got {max_denominator!r}")
+    vals = sorted({Fraction(a, d) for d in range(1, n + 1) for a in range(d)})
+    periodic = np.asarray(parent.model.periodic, dtype=bool)
+    axes = [[float(v) for v in vals] if periodic[c] else [0.0] for c in range(3)]
+    grid = np.stack(np.meshgrid(*axes, indexing="ij"), -1).reshape(-1, 3)
+    rots = np.asarray(parent.symmetry.rotations)
+    seen = np.zeros(len(grid), dtype=bool)
+    keys = {tuple(np.round(np.mod(q, 1.0) * 840).astype(int) % 840): a for a, q in enumerate(grid)}
+    out = []
+    for a, q in enumerate(grid):
+        if seen[a]:
+            continue
+        out.append(q)
+        star = np.einsum("nji,j->ni", rots, q)
+        for p in np.concatenate([star, -star]):
+            key = tuple(np.round(np.mod(p, 1.0) * 840).astype(int) % 840)
+            if key in keys:
+                seen[keys[key]] = True
+    return out
+
+
+def modes_mesh(parent, qs, k_step_per_A: float = 0.15) -> tuple[int, int, int]:
+    """Γ-centred mesh holding every q of ``qs`` and at least as fine as ``k_step_per_A`` (Å⁻¹, 2π included)."""
+    from screener.bz.kmesh import mesh_from_spacing
+
+    den = [int(np.lcm.reduce([Fraction(float(q[c])).limit_denominator(24).denominator for q in qs]))
+           for c in range(3)]
+    base = mesh_from_spacing(parent.crystal, k_step_per_A, parent.model.periodic)
+    return tuple(int(-(-b // d) * d) if b > 1 else (d if d > 1 else 1) for b, d in zip(base, den, strict=True))
+
+
+@dataclass(frozen=True, eq=False)
+class ModesResult:
+    """Stiffness and χ0 of a parent over a q grid."""
+
+    stiffness: tuple[Stiffness, ...]
+    """Φ(q) per q, in the order of ``searched``."""
+    chi0_states_per_eV: tuple[tuple[float, float], ...]
+    """(with overlap factors, without) χ0(q) per q, states/eV per cell."""
+    searched: tuple[tuple[float, float, float], ...]
+    """The q that were searched (one per star), fractions of the parent's reciprocal vectors."""
+    kmesh: tuple[int, int, int]
+    """The one Γ-centred mesh of parent eigenvectors used for every q."""
+    fermi_level_eV: float
+    """Fermi level of the filling used, eV."""
+    n_electrons: float
+    """Electrons per primitive cell placed in the bands."""
+
+
+def survey(parent, max_denominator: int = 4, *, method: str = "fermi-dirac", width_eV: float = 0.05,
+           n_electrons: float | None = None, k_step_per_A: float = 0.15) -> ModesResult:
+    """Φ(q) and χ0(q) on the q grid of the parent, from one set of parent eigenvectors."""
+    from screener.bz.susceptibility import lindhard
+
+    qs = q_grid(parent, max_denominator)
+    mesh = modes_mesh(parent, qs, k_step_per_A)
+    st = mesh_states(parent.model, mesh, method=method, width_eV=width_eV, n_electrons=n_electrons)
+    res = [stiffness(parent, q, states=st) for q in qs]
+    chi = [tuple(lindhard(mesh, st.energies_eV, st.vectors, st.occupations, st.dfde_per_eV, q, overlaps=o,
+                          spin_degeneracy=st.spin_degeneracy) for o in (True, False)) for q in qs]
+    return ModesResult(stiffness=tuple(res), chi0_states_per_eV=tuple(chi),
+                       searched=tuple(tuple(float(x) for x in q) for q in qs), kmesh=mesh,
+                       fermi_level_eV=st.fermi_level_eV, n_electrons=st.n_electrons)
+
+
 def strain_stiffness(*args, **kwargs):
     """Elastic constants from homogeneous strain at q = 0."""
     raise NotImplementedError("homogeneous strain (elastic constants of the model) is not implemented yet")
