@@ -109,3 +109,42 @@ def test_q_off_the_mesh_is_refused():
     st = mesh_states(p.model, (10, 1, 1))
     with pytest.raises(ParameterError, match="not on the"):
         band_force_constants(p.model, st, (1 / 3, 0, 0))
+
+
+def test_simple_cubic_as_softest_at_R_with_the_body_diagonal_alternation_soft():
+    # A7 arsenic as a pairing distortion of simple cubic along a body diagonal at R = (½,½,½) (Schiferl & Barrett,
+    # J. Appl. Cryst. 2, 30 (1969); Sci. Rep. 6, 20337 (2016)); the three R patterns are degenerate in Pm-3m, so
+    # the body diagonal lies in the soft subspace
+    from pathlib import Path
+
+    from screener.screen.modes import mesh_states as states_of
+    from screener.structure.formats import read_structure
+
+    p = build_parent(read_structure(Path(__file__).parents[1] / "data" / "known_phases" /
+                                    "As_simple_cubic_parent.cif"))
+    st = states_of(p.model, (8, 8, 8))
+    qs = [(0.5, 0.5, 0.5), (0.5, 0.5, 0), (0.5, 0, 0), (0.25, 0.25, 0.25)]
+    low = [stiffness(p, q, states=st).eigenvalues_eV_per_A2[0] for q in qs]
+    assert int(np.argmin(low)) == 0 and low[0] < 0
+    s = stiffness(p, qs[0], states=st)
+    soft = s.patterns[:, np.abs(s.eigenvalues_eV_per_A2 - low[0]) < 1e-6 * abs(low[0])]
+    diag = np.ones(3) / np.sqrt(3)
+    assert np.linalg.norm(soft.conj().T @ diag) == pytest.approx(1.0, abs=1e-6)
+
+
+def test_cli_modes_json_keys(capsys):
+    import json
+    from pathlib import Path
+
+    from screener.show.cli import main
+
+    f = Path(__file__).parents[1] / "data" / "known_phases" / "As_simple_cubic_parent.cif"
+    assert main(["modes", str(f), "--json", "--q-grid", "2"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert {"q_points", "soft", "searched"} <= set(out)
+    first = out["q_points"][0]
+    assert {"q_frac", "stiffness_eV_per_A2", "patterns", "chi0"} <= set(first)
+    assert first["stiffness_eV_per_A2"] == sorted(first["stiffness_eV_per_A2"])
+    # Pm-3m has four stars among {0, ½}³: Γ, X, M, R (International Tables for Crystallography A, No. 221)
+    assert len(out["searched"]) == 4
+    assert out["soft"][0]["q_frac"] == [0.5, 0.5, 0.5]
