@@ -428,6 +428,14 @@ def build_parser() -> argparse.ArgumentParser:
                    help="largest atomic displacement to the parent, Å (default 0.4)")
     p.add_argument("--max-strain", type=float, default=None, help="largest lattice strain to the parent (default 0.08)")
     p.set_defaults(func=cmd_explain)
+
+    p = sub.add_parser("modes", help="stiffness Φ(q), soft patterns and χ0 of the parent over a q grid")
+    _add_structure_args(p)
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--plot", help="write the lowest stiffness and χ0 per searched q to this PNG file")
+    p.add_argument("--q-grid", type=int, default=4, help="largest denominator of q along each direction (default 4)")
+    p.add_argument("--electrons", type=float, help="valence electrons per primitive cell (rigid-band filling)")
+    p.set_defaults(func=cmd_modes)
     return parser
 
 
@@ -505,6 +513,64 @@ def main(argv=None) -> int:
 
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
+
+
+# ---------------------------------------------------------------------------------------------- modes
+def cmd_modes(args) -> int:
+    """Stiffness of the parent over a q grid. ``--json`` prints ``q_points`` [{``q_frac``,
+    ``stiffness_eV_per_A2`` (ascending), ``patterns`` (in words), ``chi0`` {``with_overlaps``,
+    ``without_overlaps``} (states/eV per cell)}], ``soft`` (negative stiffnesses, most negative first), ``searched``
+    (the q list), ``kmesh``, ``fermi_level_eV``, ``electrons_per_cell``."""
+    import numpy as np
+
+    from screener.screen.modes import describe_pattern, survey
+    from screener.screen.parent import build_parent
+    from screener.screen.settings import ScreenSettings
+
+    if args.plot:
+        _check_output_file(args.plot, "--plot")
+    parent = build_parent(_read(args), settings=ScreenSettings(symprec_A=args.symprec))
+    res = survey(parent, args.q_grid, n_electrons=args.electrons)
+    points, soft = [], []
+    for s, chi in zip(res.stiffness, res.chi0_states_per_eV, strict=True):
+        vals = s.eigenvalues_eV_per_A2
+        words = [describe_pattern(parent.crystal, s.patterns[:, a], s.q_frac) for a in range(len(vals))]
+        points.append({"q_frac": list(s.q_frac), "stiffness_eV_per_A2": [float(v) for v in vals],
+                       "patterns": words, "chi0": {"with_overlaps": chi[0], "without_overlaps": chi[1]}})
+        # below this a "negative" stiffness is rounding of a zero (uniform translation at Γ; common practice)
+        scale = 1e-6 * max(1.0, float(np.max(np.abs(vals))))
+        soft += [{"q_frac": list(s.q_frac), "stiffness_eV_per_A2": float(v), "pattern": w}
+                 for v, w in zip(vals, words, strict=True) if v < -scale]
+    soft.sort(key=lambda x: x["stiffness_eV_per_A2"])
+    out = {"file": str(args.file), "q_points": points, "soft": soft, "searched": [list(q) for q in res.searched],
+           "kmesh": list(res.kmesh), "fermi_level_eV": res.fermi_level_eV, "electrons_per_cell": res.n_electrons}
+    if args.plot:
+        from screener.show.figures import plot_modes
+
+        plot_modes(res, args.plot, title=parent.crystal.formula)
+    if args.json:
+        _print_json(out)
+        return 0
+    lines = [f"file              {args.file}",
+             f"k-mesh            {'×'.join(map(str, res.kmesh))} (one set of parent eigenvectors for every q)",
+             f"electrons         {res.n_electrons:g} per primitive cell",
+             f"searched          {len(res.searched)} q (denominators up to {args.q_grid}, one per star)", ""]
+    lines.append(f"  {'q':<22} {'lowest stiffnesses (eV/Å²)':<34} χ0 (states/eV)")
+    for pnt in points:
+        q = "(" + ", ".join(f"{x:.3g}" for x in pnt["q_frac"]) + ")"
+        low = " ".join(f"{v:8.3f}" for v in pnt["stiffness_eV_per_A2"][:3])
+        lines.append(f"  {q:<22} {low:<34} {pnt['chi0']['with_overlaps']:.3f}")
+    lines.append("")
+    if soft:
+        lines.append("soft patterns (most negative first)")
+        lines += [f"  {x['stiffness_eV_per_A2']:9.3f} eV/Å²  {x['pattern']}" for x in soft[:10]]
+    else:
+        lines.append("no soft pattern on the searched q")
+    chis = sorted(points, key=lambda x: -x["chi0"]["with_overlaps"])[:3]
+    lines.append("χ0 maxima: " + "; ".join(f"{c['chi0']['with_overlaps']:.3f} at "
+                                           f"({', '.join(f'{x:.3g}' for x in c['q_frac'])})" for c in chis))
+    print("\n".join(lines))
+    return 0
 
 
 if __name__ == "__main__":

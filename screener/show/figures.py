@@ -409,3 +409,24 @@ def plot_bond_curves(energies_eV, fermi_level_eV: float, curves, out_png) -> Pat
     ax.set_ylabel("energy E (eV)")
     ax.legend(fontsize=7, loc="lower right")
     return _save(fig, out_png)
+
+
+def plot_modes(result, out_png, title: str | None = None) -> Path:
+    """Lowest stiffness eigenvalue and χ0 per searched q (a ModesResult of screener.screen.modes)."""
+    low = [float(s.eigenvalues_eV_per_A2[0]) for s in result.stiffness]
+    chi = [c[0] for c in result.chi0_states_per_eV]
+    labels = ["(" + ",".join(f"{x:.2g}" for x in q) + ")" for q in result.searched]
+    fig = _new_figure((max(6.0, 0.35 * len(labels)), 5.0))
+    ax1, ax2 = fig.subplots(2, 1, sharex=True)
+    x = np.arange(len(labels))
+    ax1.bar(x, low, color=curve_style(0)[0])
+    ax1.axhline(0.0, color="0.3", lw=0.8)
+    ax1.set_ylabel("lowest stiffness (eV/Å²)")
+    ax2.plot(x, chi, marker="o", color=curve_style(1)[0])
+    ax2.set_ylabel("χ₀ (states/eV per cell)")
+    ax2.set_xticks(x)
+    ax2.set_xticklabels(labels, rotation=90, fontsize=7)
+    ax2.set_xlabel("q (fractions of the reciprocal vectors)")
+    if title:
+        ax1.set_title(title)
+    return _save(fig, out_png)

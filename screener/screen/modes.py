@@ -1,0 +1,362 @@
+"""Stiffness of the parent at a wave vector q: force constants Φ(q) from the model, soft patterns.
+
+Φ(q) (3N × 3N, eV/Å², no masses) is the sum of
+
+* the band part, second-order perturbation theory on the parent's tight-binding model (the free energy with
+  smeared occupations, Fermi–Dirac or Gaussian, so the sum over pairs is regular):
+
+      Φ_{sα,tβ}(q) = g Σ_k w_k [ Σ_n f_nk <nk|∂²H/∂u*_{sα}∂u_{tβ}|nk>
+                                 + Σ_{n,m} (f_nk − f_m,k+q)/(ε_nk − ε_m,k+q) <nk|∂H/∂u*_{sα}|m,k+q><m,k+q|∂H/∂u_{tβ}|nk> ]
+
+  with the limit df/dε for (near-)degenerate pairs, and at q = 0 the term that keeps the electron count fixed
+  (Fermi level following the displacement). The derivatives of H come from the two-centre blocks of every bond
+  (Slater & Koster, Phys. Rev. 94, 1498 (1954)) with their distance law, by central finite differences of the block
+  in the bond vector, vectorised over bonds; k and k + q lie on the same Γ-centred mesh, so one set of parent
+  eigenvectors serves every q commensurate with it;
+* the elastic part, analytic from the closure in use (the parent's pair repulsion A (d0/d)^m or bond springs, the
+  same one `rank` uses): the Hessian φ'' n nᵀ + (φ'/d)(1 − n nᵀ) of each bond.
+
+Convention: a displacement u_s(L) = e_s exp(2πi q·L) of atom s in cell L (q in fractions of the parent's
+reciprocal vectors). For q ≡ −q (q ∈ {0, ½}³) and a real e the energy per primitive cell changes by ½ eᵀ Φ e λ².
+Negative eigenvalues are soft patterns.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from fractions import Fraction
+
+import numpy as np
+
+from screener.bz.susceptibility import grid_shift, pair_factor, shifted_index
+from screener.errors import ParameterError
+
+#: Finite-difference step in the bond vector for the first and second derivatives of the two-centre blocks, Å.
+_STEP1_A = 1e-3
+_STEP2_A = 2e-3
+
+
+@dataclass(frozen=True, eq=False)
+class Stiffness:
+    """Force constants of the parent at one wave vector."""
+
+    q_frac: tuple[float, float, float]
+    """Wave vector, fractions of the parent's reciprocal vectors."""
+    band_eV_per_A2: np.ndarray
+    """(3N, 3N) complex Hermitian band part of Φ(q), eV/Å² (rows atom-major: atom s, Cartesian α → 3s + α)."""
+    elastic_eV_per_A2: np.ndarray
+    """(3N, 3N) complex Hermitian elastic part of Φ(q), eV/Å²."""
+    eigenvalues_eV_per_A2: np.ndarray
+    """(3N,) eigenvalues of the total Φ(q), ascending, eV/Å²."""
+    patterns: np.ndarray
+    """(3N, 3N) complex eigenvectors as columns (atom-major Cartesian displacements, unit norm)."""
+    kmesh: tuple[int, int, int]
+    """Γ-centred k-mesh of the parent the sums ran over."""
+
+    @property
+    def total_eV_per_A2(self) -> np.ndarray:
+        """(3N, 3N) Φ(q) = band + elastic part, eV/Å²."""
+        return self.band_eV_per_A2 + self.elastic_eV_per_A2
+
+
+# ---------------------------------------------------------------------------------------------- bond blocks
+def _bond_data(model):
+    """Per bond: atom i, atom j, image R, Cartesian vector d, and a function d → (p, norb, norb) padded blocks."""
+    from screener.tb.slater_koster import reverse_parameters, sk_block
+
+    crystal, params = model.crystal, model.params
+    if model.spin_degeneracy != 2:
+        raise NotImplementedError("force constants of a model with spin–orbit coupling are not implemented")
+    b = model.bonds
+    vec_frac = crystal.frac[b.j] + b.image - crystal.frac[b.i]
+    cart = vec_frac @ crystal.lattice_A
+    norb = model.n_orbitals
+    offset = np.searchsorted(model.orbital_site, np.arange(crystal.n_atoms))
+    groups: dict[tuple[str, str], list[int]] = {}
+    for k, (ia, ja) in enumerate(zip(b.i, b.j, strict=True)):
+        groups.setdefault((crystal.species[ia], crystal.species[ja]), []).append(k)
+
+    def blocks(d_cart: np.ndarray) -> np.ndarray:
+        """(p, norb, norb) block of each bond at bond vectors d_cart, padded into the [i-orbitals, j-orbitals] place."""
+        out = np.zeros((len(d_cart), norb, norb))
+        for (sa, sb), members in groups.items():
+            m = np.array(members)
+            bp = params.bond(sa, sb)
+            hop = bp.hoppings(np.linalg.norm(d_cart[m], axis=1))
+            if bp.pair[0] != sa:
+                hop = reverse_parameters(hop)
+            oa, ob = params.species(sa).orbitals, params.species(sb).orbitals
+            blk = sk_block(d_cart[m], oa, ob, hop)
+            rows = offset[b.i[m]][:, None] + np.arange(len(oa))[None, :]
+            cols = offset[b.j[m]][:, None] + np.arange(len(ob))[None, :]
+            out[m[:, None, None], rows[:, :, None], cols[:, None, :]] = blk
+        return out
+
+    return b.i, b.j, b.image, cart, blocks
+
+
+def _block_derivatives(cart, blocks):
+    """First (p, 3, norb, norb) and second (p, 3, 3, norb, norb) derivatives of the blocks in the bond vector."""
+    eye = np.eye(3)
+    h1, h2 = _STEP1_A, _STEP2_A
+    g1 = np.stack([(blocks(cart + h1 * eye[a]) - blocks(cart - h1 * eye[a])) / (2 * h1) for a in range(3)], axis=1)
+    g2 = np.empty(g1.shape[:2] + (3,) + g1.shape[2:])
+    b0 = blocks(cart)
+    for a in range(3):
+        for c in range(a, 3):  # six second derivatives, each a vectorised call over all bonds
+            if a == c:
+                val = (blocks(cart + h2 * eye[a]) - 2 * b0 + blocks(cart - h2 * eye[a])) / h2**2
+            else:
+                ea, ec = h2 * eye[a], h2 * eye[c]
+                val = (blocks(cart + ea + ec) - blocks(cart + ea - ec) - blocks(cart - ea + ec)
+                       + blocks(cart - ea - ec)) / (4 * h2**2)
+            g2[:, a, c] = g2[:, c, a] = val
+    return g1, g2
+
+
+def _coefficients(i, j, image, q, n_atoms) -> np.ndarray:
+    """(p, N) complex c_s = δ_sj exp(2πi q·R) − δ_si: how the bond vector follows atom s's Bloch displacement."""
+    c = np.zeros((len(i), n_atoms), dtype=complex)
+    rows = np.arange(len(i))
+    np.add.at(c, (rows, j), np.exp(2j * np.pi * (image @ q)))
+    np.add.at(c, (rows, i), -1.0)
+    return c
+
+
+# ---------------------------------------------------------------------------------------------- electrons
+@dataclass(frozen=True, eq=False)
+class MeshStates:
+    """Eigenvalues, eigenvectors and smeared occupations of the parent on a full Γ-centred mesh (no symmetry)."""
+
+    mesh: tuple[int, int, int]
+    """Mesh sizes."""
+    kfrac: np.ndarray
+    """(nk, 3) k-points, index = (a·m1 + b)·m2 + c for grid address (a, b, c)."""
+    energies_eV: np.ndarray
+    """(nk, nb) eigenvalues, eV."""
+    vectors: np.ndarray
+    """(nk, norb, nb) eigenvectors as columns (lattice gauge)."""
+    occupations: np.ndarray
+    """(nk, nb) occupation per spin state, 0 … 1."""
+    dfde_per_eV: np.ndarray
+    """(nk, nb) df/dε per eV (≤ 0)."""
+    fermi_level_eV: float
+    """Fermi level, eV."""
+    n_electrons: float
+    """Electrons per cell placed in the bands."""
+    method: str
+    """Smearing: 'fermi-dirac' or 'gaussian'."""
+    width_eV: float
+    """Smearing width σ, eV."""
+    spin_degeneracy: int
+    """2 (spin–orbit coupling is not handled here)."""
+    free_energy_eV: float
+    """Free energy E − σS per cell of these occupations, eV."""
+
+
+def mesh_states(model, mesh, *, method: str = "fermi-dirac", width_eV: float = 0.05,
+                n_electrons: float | None = None) -> MeshStates:
+    """Diagonalise the model once on the full Γ-centred ``mesh`` and occupy the bands (rigid-band ``n_electrons``)."""
+    from screener.bz.common import SMEARING_METHODS
+    from screener.bz.integrate import integrate
+    from screener.bz.kmesh import _check_mesh, irreducible_mesh
+    from screener.bz.smearing import delta, occupation
+    from screener.tb.model import single_blas_thread
+
+    if method not in ("fermi-dirac", "gaussian"):
+        raise ParameterError(f"stiffness needs smeared occupations: method must be 'fermi-dirac' or 'gaussian', "
+                             f"got {method!r} (allowed smearing methods: {', '.join(SMEARING_METHODS)})")
+    mesh = _check_mesh(mesh)
+    addr = np.stack(np.meshgrid(*(np.arange(n) for n in mesh), indexing="ij"), -1).reshape(-1, 3)
+    k = addr / np.asarray(mesh, dtype=float)
+    with single_blas_thread():
+        e, v = model.eigensystem(k)
+    n = model.n_electrons if n_electrons is None else float(n_electrons)
+    ir = irreducible_mesh(model.crystal, mesh, use_symmetry=False)
+    res = integrate(_reorder(e, ir.grid_address, mesh), ir, n, method=method, width_eV=width_eV,
+                    spin_degeneracy=model.spin_degeneracy)
+    x = (e - res.fermi_level_eV) / width_eV
+    f = occupation(x, method)
+    dfde = -delta(x, method) / width_eV
+    return MeshStates(mesh=mesh, kfrac=k, energies_eV=e, vectors=v, occupations=f, dfde_per_eV=dfde,
+                      fermi_level_eV=res.fermi_level_eV, n_electrons=n, method=method, width_eV=float(width_eV),
+                      spin_degeneracy=model.spin_degeneracy, free_energy_eV=res.free_energy_eV)
+
+
+def _reorder(e, grid_address, mesh):
+    """Eigenvalues in our row-major grid order → the order of ``grid_address``."""
+    a = np.mod(grid_address, mesh)
+    idx = (a[:, 0] * mesh[1] + a[:, 1]) * mesh[2] + a[:, 2]
+    return e[idx]
+
+
+# ---------------------------------------------------------------------------------------------- Φ(q)
+def band_force_constants(model, states: MeshStates, q_frac) -> np.ndarray:
+    """(3N, 3N) complex band part of Φ(q), eV/Å², from the eigenvectors in ``states`` (see module docstring)."""
+    q = np.asarray(q_frac, dtype=float)
+    shift = grid_shift(states.mesh, q)
+    n_atoms = model.crystal.n_atoms
+    i, j, image, cart, blocks = _bond_data(model)
+    g1, g2 = _block_derivatives(cart, blocks)
+    c = _coefficients(i, j, image, q, n_atoms)
+    k = states.kfrac
+    nk = len(k)
+    w = 1.0 / nk
+    g = states.spin_degeneracy
+    ph = np.exp(2j * np.pi * (k @ image.T))  # (nk, p)
+    phq = np.exp(-2j * np.pi * (image @ q))  # (p,)
+    # first-order operator D_{sα}(k) from k to k + q
+    wp = ph[:, :, None] * c[None]  # (nk, p, N)
+    wm = np.conj(ph)[:, :, None] * (c * phq[:, None])[None]
+    g1t = np.swapaxes(g1, 2, 3)
+    d_op = (np.einsum("kps,paxy->ksaxy", wp, g1) + np.einsum("kps,paxy->ksaxy", wm, g1t))
+    d_op = d_op.reshape(nk, 3 * n_atoms, *g1.shape[2:])
+    kq = shifted_index(states.mesh, shift)
+    vk, vq = states.vectors, states.vectors[kq]
+    mel = np.einsum("kxm,kdxy,kyn->kdmn", np.conj(vq), d_op, vk)  # <m,k+q|D_d|n,k>
+    fac = pair_factor(states.energies_eV[:, None, :], states.energies_eV[kq][:, :, None],
+                       states.occupations[:, None, :], states.occupations[kq][:, :, None],
+                       states.dfde_per_eV[:, None, :], states.dfde_per_eV[kq][:, :, None])  # (nk, m, n)
+    resp = g * w * np.einsum("kmn,kamn,kbmn->ab", fac, np.conj(mel), mel)
+    # second-order (diagonal in k) term through the one-cell density matrix ρ_R = Σ_k w e^{2πik·R} Σ_n f ψψ†
+    rho = np.einsum("kxn,kn,kyn->kxy", vk, states.occupations, np.conj(vk))  # ρ(k)[x, y]
+    # Tr(ρ(k) A) for A in the [i, j] place with phase e^{ikR}, plus its transpose in the [j, i] place with e^{-ikR}
+    tr = np.einsum("kp,kyx,pabxy->pab", ph, rho, g2) + np.einsum("kp,kxy,pabxy->pab", np.conj(ph), rho, g2)
+    diag = g * w * np.einsum("ps,pt,pab->satb", np.conj(c), c, tr).reshape(3 * n_atoms, 3 * n_atoms)
+    phi = resp + diag
+    if np.all(shift == 0):
+        # fixed electron count: the Fermi level follows the first-order shifts of the levels
+        nu = g * w * np.einsum("kn,kdnn->d", states.dfde_per_eV, mel)
+        dos = -g * w * float(np.sum(states.dfde_per_eV))
+        if dos > 1e-12:
+            phi = phi - np.outer(np.conj(nu), nu) / dos
+    return 0.5 * (phi + np.conj(phi.T))
+
+
+def elastic_force_constants(crystal, elastic, q_frac) -> np.ndarray:
+    """(3N, 3N) complex elastic part of Φ(q), eV/Å², from an ``ElasticModel`` of the parent (analytic)."""
+    q = np.asarray(q_frac, dtype=float)
+    vec = (crystal.frac[elastic.j] + elastic.image - crystal.frac[elastic.i]) @ crystal.lattice_A
+    d = np.linalg.norm(vec, axis=1)
+    n = vec / d[:, None]
+    m, a, d0, k = elastic.exponent, elastic.repulsion_eV, elastic.rest_length_A, elastic.spring_eV_per_A2
+    d1 = -m * a * d0**m / d ** (m + 1) + k * (d - d0)
+    d2 = m * (m + 1) * a * d0**m / d ** (m + 2) + k
+    nn = n[:, :, None] * n[:, None, :]
+    hess = d2[:, None, None] * nn + (d1 / d)[:, None, None] * (np.eye(3)[None] - nn)
+    c = _coefficients(elastic.i, elastic.j, elastic.image, q, crystal.n_atoms)
+    na = crystal.n_atoms
+    return np.einsum("ps,pt,pab->satb", np.conj(c), c, hess).reshape(3 * na, 3 * na)
+
+
+def stiffness(parent, q_frac, *, mesh=None, states: MeshStates | None = None, method: str = "fermi-dirac",
+              width_eV: float = 0.05, n_electrons: float | None = None) -> Stiffness:
+    """Φ(q) of a Parent (band part from its model, elastic part from its closure), eigenvalues ascending."""
+    from screener.screen.closure import elastic_model_for
+
+    model = parent.model
+    if states is None:
+        if mesh is None:
+            raise ParameterError("give a k-mesh (mesh=...) or precomputed states for the stiffness")
+        states = mesh_states(model, mesh, method=method, width_eV=width_eV, n_electrons=n_electrons)
+    en = parent.energetics
+    el = elastic_model_for(parent.crystal, parent.params, parent.bonds, en.repulsion_eV, en.pair_exponent)
+    band = band_force_constants(model, states, q_frac)
+    elas = elastic_force_constants(parent.crystal, el, q_frac)
+    vals, vecs = np.linalg.eigh(band + elas)
+    return Stiffness(q_frac=tuple(float(x) for x in q_frac), band_eV_per_A2=band, elastic_eV_per_A2=elas,
+                     eigenvalues_eV_per_A2=vals, patterns=vecs, kmesh=states.mesh)
+
+
+def describe_pattern(crystal, pattern, q_frac) -> str:
+    """Which atoms move and along which direction, in words."""
+    u = np.asarray(pattern).reshape(-1, 3)
+    amp = np.linalg.norm(u, axis=1)
+    moving = amp > 0.2 * amp.max()
+    q = ", ".join(str(Fraction(float(x)).limit_denominator(12)) for x in q_frac)
+    parts = []
+    for s in np.flatnonzero(moving):
+        v = u[s] * np.exp(-1j * np.angle(u[s][np.argmax(np.abs(u[s]))]))
+        d = v.real / max(np.linalg.norm(v.real), 1e-12)
+        parts.append(f"{crystal.labels[s]} along [{', '.join(f'{x + 0.0:.2f}' for x in d)}]")
+    kind = "uniform" if not any(q_frac) else "modulated"
+    return f"{kind} at q = ({q}): " + "; ".join(parts)
+
+
+def q_grid(parent, max_denominator: int = 4) -> list[np.ndarray]:
+    """Commensurate q with denominators up to ``max_denominator`` along each bonded direction, one per star.
+
+    Two q are the same when a rotation of the parent (q → Rᵀ q, fractional) or time reversal (q → −q) maps one
+    onto the other modulo the reciprocal lattice. The high-symmetry points with such denominators (Γ, the zone
+    faces and corners, fcc's W = (½, ¼, ¾) …) are on this grid.
+    """
+    n = int(max_denominator)
+    if n < 1:
+        raise ParameterError(f"--q-grid must be a positive integer (largest denominator of q), got {max_denominator!r}")
+    vals = sorted({Fraction(a, d) for d in range(1, n + 1) for a in range(d)})
+    periodic = np.asarray(parent.model.periodic, dtype=bool)
+    axes = [[float(v) for v in vals] if periodic[c] else [0.0] for c in range(3)]
+    grid = np.stack(np.meshgrid(*axes, indexing="ij"), -1).reshape(-1, 3)
+    rots = np.asarray(parent.symmetry.rotations)
+    seen = np.zeros(len(grid), dtype=bool)
+    keys = {tuple(np.round(np.mod(q, 1.0) * 840).astype(int) % 840): a for a, q in enumerate(grid)}
+    out = []
+    for a, q in enumerate(grid):
+        if seen[a]:
+            continue
+        out.append(q)
+        star = np.einsum("nji,j->ni", rots, q)
+        for p in np.concatenate([star, -star]):
+            key = tuple(np.round(np.mod(p, 1.0) * 840).astype(int) % 840)
+            if key in keys:
+                seen[keys[key]] = True
+    return out
+
+
+def modes_mesh(parent, qs, k_step_per_A: float = 0.15) -> tuple[int, int, int]:
+    """Γ-centred mesh holding every q of ``qs`` and at least as fine as ``k_step_per_A`` (Å⁻¹, 2π included)."""
+    from screener.bz.kmesh import mesh_from_spacing
+
+    den = [int(np.lcm.reduce([Fraction(float(q[c])).limit_denominator(24).denominator for q in qs]))
+           for c in range(3)]
+    base = mesh_from_spacing(parent.crystal, k_step_per_A, parent.model.periodic)
+    return tuple(int(-(-b // d) * d) if b > 1 else (d if d > 1 else 1) for b, d in zip(base, den, strict=True))
+
+
+@dataclass(frozen=True, eq=False)
+class ModesResult:
+    """Stiffness and χ0 of a parent over a q grid."""
+
+    stiffness: tuple[Stiffness, ...]
+    """Φ(q) per q, in the order of ``searched``."""
+    chi0_states_per_eV: tuple[tuple[float, float], ...]
+    """(with overlap factors, without) χ0(q) per q, states/eV per cell."""
+    searched: tuple[tuple[float, float, float], ...]
+    """The q that were searched (one per star), fractions of the parent's reciprocal vectors."""
+    kmesh: tuple[int, int, int]
+    """The one Γ-centred mesh of parent eigenvectors used for every q."""
+    fermi_level_eV: float
+    """Fermi level of the filling used, eV."""
+    n_electrons: float
+    """Electrons per primitive cell placed in the bands."""
+
+
+def survey(parent, max_denominator: int = 4, *, method: str = "fermi-dirac", width_eV: float = 0.05,
+           n_electrons: float | None = None, k_step_per_A: float = 0.15) -> ModesResult:
+    """Φ(q) and χ0(q) on the q grid of the parent, from one set of parent eigenvectors."""
+    from screener.bz.susceptibility import lindhard
+
+    qs = q_grid(parent, max_denominator)
+    mesh = modes_mesh(parent, qs, k_step_per_A)
+    st = mesh_states(parent.model, mesh, method=method, width_eV=width_eV, n_electrons=n_electrons)
+    res = [stiffness(parent, q, states=st) for q in qs]
+    chi = [tuple(lindhard(mesh, st.energies_eV, st.vectors, st.occupations, st.dfde_per_eV, q, overlaps=o,
+                          spin_degeneracy=st.spin_degeneracy) for o in (True, False)) for q in qs]
+    return ModesResult(stiffness=tuple(res), chi0_states_per_eV=tuple(chi),
+                       searched=tuple(tuple(float(x) for x in q) for q in qs), kmesh=mesh,
+                       fermi_level_eV=st.fermi_level_eV, n_electrons=st.n_electrons)
+
+
+def strain_stiffness(*args, **kwargs):
+    """Elastic constants from homogeneous strain at q = 0."""
+    raise NotImplementedError("homogeneous strain (elastic constants of the model) is not implemented yet")
