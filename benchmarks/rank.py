@@ -1,32 +1,65 @@
-"""Seconds per default `rank` for each bundled demo structure (one run; the machine may be shared, so compare
-figures from the same run rather than across runs).
+"""Time of a default `rank` per bundled demo structure and for an 8-atom supercell (simple-cubic Bi, 2×2×2), as a
+ratio to a reference workload timed in the same run: numpy.linalg.eigvalsh of 13,824 Hermitian 8×8 matrices, ten
+times (one BLAS thread, as rank uses). The machine may be shared: quote the ratios, not the seconds.
 
-Usage: python benchmarks/rank.py
+Targets (issue 13): 1–2-atom parents ≤ 1.5, the 8-atom cell ≤ 2 (it is ranked in its 1-atom primitive cell).
+
+Usage: python benchmarks/rank.py [--rounds 3]
 """
 
 from __future__ import annotations
 
+import argparse
+import statistics
 import time
+from pathlib import Path
+
+import numpy as np
 
 from screener.screen.rank import rank
-from screener.show.report import demo_folder
 from screener.structure.formats import read_structure
+from screener.tb.model import single_blas_thread
+
+ROOT = Path(__file__).resolve().parents[1]
 
 
-def main() -> None:
-    folder = demo_folder()
-    total = 0.0
-    print(f"{'structure':<24} {'atoms':>5} {'candidates':>10} {'seconds':>8}  best")
-    for path in sorted(p for p in folder.iterdir() if p.suffix.lower() in (".cif", ".json")):
-        crystal = read_structure(path)
+def reference_workload(rng=np.random.default_rng(13)) -> float:
+    """Seconds for eigvalsh of 13,824 random Hermitian 8×8 matrices, ten times."""
+    a = rng.standard_normal((13824, 8, 8)) + 1j * rng.standard_normal((13824, 8, 8))
+    h = a + np.conj(np.swapaxes(a, 1, 2))
+    with single_blas_thread():
         t0 = time.perf_counter()
-        result = rank(crystal, progress=False)
-        dt = time.perf_counter() - t0
-        total += dt
-        best = result.candidates[0] if result.candidates else None
-        what = f"{best.generator} -> {best.space_group_symbol} ({best.verdict})" if best else "none"
-        print(f"{path.name:<24} {crystal.n_atoms:>5} {len(result.candidates):>10} {dt:8.2f}  {what}")
-    print(f"seconds_total {total:.2f}")
+        for _ in range(10):
+            np.linalg.eigvalsh(h)
+        return time.perf_counter() - t0
+
+
+def inputs():
+    for path in sorted((ROOT / "demo_structures").glob("*.cif")):
+        yield path.name, read_structure(path)
+    bi = read_structure(ROOT / "tests" / "data" / "known_phases" / "Bi_simple_cubic_parent.cif")
+    yield "Bi simple cubic 2x2x2", bi.supercell(np.diag([2, 2, 2]))
+
+
+def main(argv=None) -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--rounds", type=int, default=3, help="interleaved rounds; medians are printed")
+    args = ap.parse_args(argv)
+    cases = list(inputs())
+    times = {name: [] for name, _ in cases}
+    ref = []
+    for _ in range(args.rounds):
+        ref.append(reference_workload())
+        for name, crystal in cases:
+            t0 = time.perf_counter()
+            rank(crystal, progress=False)
+            times[name].append(time.perf_counter() - t0)
+    r = statistics.median(ref)
+    print(f"reference workload (eigvalsh 13824 x 8x8, ten times): median {r:.3f} s")
+    print(f"{'structure':<26} {'atoms':>5} {'seconds':>8} {'ratio':>6}")
+    for name, crystal in cases:
+        t = statistics.median(times[name])
+        print(f"{name:<26} {crystal.n_atoms:>5} {t:8.2f} {t / r:6.2f}")
 
 
 if __name__ == "__main__":
