@@ -23,3 +23,7 @@ class SymmetryError(ScreenerError, RuntimeError):
 
 class ConvergenceError(ScreenerError, RuntimeError):
     """A numerical procedure (Fermi level, k-mesh refinement, minimisation) did not converge."""
+
+
+class ScreenerWarning(UserWarning):
+    """Something in the input was accepted but is probably not what the user meant (unused section, fallback)."""

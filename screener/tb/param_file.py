@@ -36,9 +36,10 @@ from __future__ import annotations
 
 import math
 import tomllib
+import warnings
 from pathlib import Path
 
-from screener.errors import ParameterError, StructureError
+from screener.errors import ParameterError, ScreenerError, ScreenerWarning, StructureError
 from screener.structure.elements import normalise_symbol
 from screener.tb.params import (
     _BOND_KEYS,
@@ -58,6 +59,14 @@ from screener.tb.params import (
 )
 from screener.tb.slater_koster import ORBITAL_L, SHELLS, SK_PARAMETERS, expand_orbitals
 
+#: Longest bond cutoff a file may ask for, Å: beyond it the neighbour search and H(R) grow to gigabytes
+#: (common practice, no source: tight-binding hoppings are negligible beyond a few neighbour shells).
+MAX_CUTOFF_A = 30.0
+#: Most neighbour shells a bond entry may keep (common practice, no source).
+MAX_SHELLS = 10
+#: Largest magnitude of any number in a parameter file (eV, Å, exponents): larger is a typing error.
+MAX_ABS_VALUE = 1e6
+
 
 # ---------------------------------------------------------------------------------------------- TOML
 def load_parameters(path, elements=None, *, harrison_set: str | None = None) -> ParameterSet:
@@ -68,19 +77,43 @@ def load_parameters(path, elements=None, *, harrison_set: str | None = None) -> 
     """
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        raw = p.read_bytes()
     except OSError as e:
         raise ParameterError(f"cannot read parameter file {p}: {e.strerror or e}") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as e:
+        line = raw[: e.start].count(b"\n") + 1
+        raise ParameterError(f"parameter file {p}: line {line}: byte 0x{raw[e.start]:02x} is not UTF-8 text; "
+                             "save the file as UTF-8") from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
         raise ParameterError(f"parameter file {p}: TOML syntax error: {e}; fix the line it names") from None
+    except (ValueError, RecursionError, OverflowError) as e:  # e.g. an integer of thousands of digits
+        raise ParameterError(f"parameter file {p}: cannot be read as TOML ({type(e).__name__}: "
+                             f"{str(e)[:120]}); fix the value") from None
     return parameters_from_dict(data, elements, harrison_set=harrison_set, where=str(p))
 
 
 def parameters_from_dict(data: dict, elements=None, *, harrison_set: str | None = None,
                          where: str = "<parameters>") -> ParameterSet:
-    """Same as load_parameters for an already parsed mapping (``where`` names it in error messages)."""
+    """Same as load_parameters for an already parsed mapping (``where`` names it in error messages).
+
+    Sections for elements that are not in ``elements`` are checked, ignored and named in a ScreenerWarning.
+    """
+    try:
+        return _parameters_from_dict(data, elements, harrison_set, where)
+    except ScreenerError:
+        raise
+    except (ValueError, TypeError, KeyError, IndexError, OverflowError, RecursionError, AttributeError,
+            ZeroDivisionError) as e:
+        # a value the checks above did not foresee: still the file's fault, said in one line
+        raise ParameterError(f"parameter file {where}: cannot use a value ({type(e).__name__}: {str(e)[:160]}); "
+                             "check the numbers and tables against the documented keys") from None
+
+
+def _parameters_from_dict(data, elements, harrison_set, where) -> ParameterSet:
     ctx = _Ctx(where)
     if not isinstance(data, dict):
         raise ParameterError(f"{where}: expected a table of [species.X] and [bond.\"A-B\"] entries")
@@ -116,6 +149,12 @@ def parameters_from_dict(data: dict, elements=None, *, harrison_set: str | None 
         bonds[key] = ctx.bond(a, b, ctx.table(entry, f'[bond."{name}"]'), species, hs)
 
     keep = set(els)
+    unused = [f"[species.{e}]" for e in sorted(file_species) if e not in keep]
+    unused += [f'[bond."{k[0]}-{k[1]}"]' for k in sorted(bonds) if k[0] not in keep or k[1] not in keep]
+    if unused:
+        absent = sorted(({e for k in bonds for e in k} | set(file_species)) - keep)
+        warnings.warn(f"parameter file {where}: {', '.join(unused)} not used: the structure has no "
+                      f"{', '.join(absent)}; check the element symbols", ScreenerWarning, stacklevel=3)
     notes = [f"defaults: on-site NIST LDA (Kotochigova et al. 1997); hoppings Harrison {hs} universal law",
              f"overrides: {where}"]
     if isinstance(data.get("source"), str):
@@ -149,9 +188,16 @@ class _Ctx:
         return value
 
     def number(self, value, section: str, key: str, *, positive=False, nonnegative=False, unit="") -> float:
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            self.fail(f"{section} {key} must be a number{(' in ' + unit) if unit else ''}, "
-                      f"got {type(value).__name__} {value!r}")
+        ok = not isinstance(value, bool) and isinstance(value, (int, float))
+        if ok:
+            try:
+                ok = math.isfinite(float(value)) and abs(float(value)) <= MAX_ABS_VALUE
+            except OverflowError:  # an integer too large for a float
+                ok = False
+        if not ok:
+            shown = repr(value) if len(repr(value)) <= 40 else repr(value)[:37] + "..."
+            self.fail(f"{section} {key} must be a number{(' in ' + unit) if unit else ''}, got "
+                      f"{type(value).__name__} {shown} (finite, magnitude at most {MAX_ABS_VALUE:g})")
         if positive and value <= 0:
             self.fail(f"{section} {key} must be positive, got {value!r}")
         if nonnegative and value < 0:
@@ -249,6 +295,9 @@ class _Ctx:
         settings = {}
         if "cutoff_A" in entry:
             settings["cutoff_A"] = self.number(entry["cutoff_A"], sec, "cutoff_A", positive=True, unit="Å")
+            if settings["cutoff_A"] > MAX_CUTOFF_A:
+                self.fail(f"{sec} cutoff_A = {settings['cutoff_A']:g} Å is above the limit of {MAX_CUTOFF_A:g} Å "
+                          "(the neighbour search would need gigabytes); give a shorter cutoff")
         if "taper_A" in entry:
             t = self.number(entry["taper_A"], sec, "taper_A", nonnegative=True, unit="Å")
             if "cutoff_A" not in settings or t >= settings["cutoff_A"]:
@@ -259,8 +308,9 @@ class _Ctx:
                                                        nonnegative=True, unit="eV/Å²")
         if "shells" in entry:
             s = entry["shells"]
-            if isinstance(s, bool) or not isinstance(s, int) or s < 1:
-                self.fail(f"{sec} shells must be a positive integer, got {s!r}")
+            if isinstance(s, bool) or not isinstance(s, int) or not 1 <= s <= MAX_SHELLS:
+                shown = repr(s) if len(repr(s)) <= 40 else repr(s)[:37] + "..."
+                self.fail(f"{sec} shells must be an integer from 1 to {MAX_SHELLS}, got {shown}")
             settings["shells"] = s
         has_v = "V_eV" in entry or "eta" in entry
         if "law" not in entry:
@@ -286,6 +336,10 @@ class _Ctx:
             ex = entry["exponent"]
             exponent = self.sk_table(ex, sec, "exponent", "") if isinstance(ex, dict) else \
                 self.number(ex, sec, "exponent")
+            for k, v in (exponent.items() if isinstance(exponent, dict) else [("", exponent)]):
+                if v <= 0:
+                    self.fail(f"{sec} exponent{'.' + k if k else ''} must be positive (hoppings fall with "
+                              f"distance), got {v:g}")
         decay = self.number(entry["decay_A"], sec, "decay_A", positive=True, unit="Å") if "decay_A" in entry else None
         eta = self.sk_table(entry["eta"], sec, "eta", "") if "eta" in entry else {}
 

@@ -116,8 +116,11 @@ def test_example_file_is_accepted(tmp_path):
 
 
 def test_species_only_in_the_file_is_ignored_and_missing_species_raise(tmp_path):
+    from screener.errors import ScreenerWarning
+
     path = _write(tmp_path, EXAMPLE)
-    ps = load_parameters(path, ["Si"])
+    with pytest.warns(ScreenerWarning, match=r"\[species.C\].* not used: the structure has no C"):
+        ps = load_parameters(path, ["Si"])
     assert ps.elements == ("Si",)
     with pytest.raises(ParameterError, match=r"Ce is in the structure but has no default parameters and no \[species.Ce\]"):
         load_parameters(path, ["C", "Ce"])
