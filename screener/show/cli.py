@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from pathlib import Path
 
 from screener.errors import ScreenerError
 
@@ -13,12 +14,14 @@ def _add_structure_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", help="structure file (CIF or screener JSON)")
     p.add_argument("--format", choices=["cif", "json"], help="override the format guessed from the name")
     p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
+    p.add_argument("--max-atoms", type=int, default=None,
+                   help="largest number of atoms the structure may have after symmetry expansion (default 2000)")
 
 
 def _read(args):
     from screener.structure.formats import read_structure
 
-    return read_structure(args.file, format=args.format)
+    return read_structure(args.file, format=args.format, max_atoms=args.max_atoms)
 
 
 def _print_json(obj) -> None:
@@ -495,14 +498,31 @@ def cmd_explain(args) -> int:
 
 
 def main(argv=None) -> int:
+    import warnings
+
     parser = build_parser()
     args = parser.parse_args(argv)
+
+    def one_line_warning(message, category, filename, lineno, file=None, line=None):
+        print(f"screener {args.command}: warning: {message}", file=sys.stderr)
+
     try:
-        return int(args.func(args) or 0)
+        with warnings.catch_warnings():
+            warnings.showwarning = one_line_warning
+            return int(args.func(args) or 0)
     except ScreenerError as exc:
         if args.debug:
             raise
-        print(f"screener {args.command}: error: {exc}", file=sys.stderr)
+        msg = " ".join(str(exc).split("\n"))
+        # every error names the input it is about, even when raised deep inside the library
+        inputs = [str(x) for x in (getattr(args, "file", None), getattr(args, "params", None)) if x]
+        if inputs and not any(x in msg or Path(x).name in msg for x in inputs):
+            msg = f"{inputs[0]}: {msg}"
+        print(f"screener {args.command}: error: {msg}", file=sys.stderr)
+        return 2
+    except MemoryError:
+        print(f"screener {args.command}: error: out of memory: the input needs larger arrays than this machine "
+              "holds; use a smaller cell or a coarser --k-step", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("screener: interrupted", file=sys.stderr)

@@ -6,7 +6,7 @@ import importlib
 import re
 from pathlib import Path
 
-from screener.errors import FormatError, ScreenerError
+from screener.errors import FormatError, ScreenerError, StructureError
 from screener.structure.crystal import Crystal
 
 #: format name -> (module under screener.structure.formats, file name endings that select it)
@@ -53,14 +53,27 @@ def _module(fmt: str):
     return importlib.import_module(f".{FORMATS[fmt][0]}", __name__)
 
 
-def read_structure(path: str | Path, format: str | None = None, **options) -> Crystal:
-    """Read one structure file into a Crystal. Errors name the file."""
+def read_structure(path: str | Path, format: str | None = None, max_atoms: int | None = None,
+                   **options) -> Crystal:
+    """Read one structure file into a Crystal. Errors name the file.
+
+    ``max_atoms`` (default ``cif.MAX_ATOMS``) bounds the atoms of the cell, after symmetry expansion for CIF.
+    """
+    from screener.structure.formats.cif import MAX_ATOMS
+
     path = Path(path)
     if not path.is_file():
         raise FormatError(f"{path}: no such file" + (" (it is a folder)" if path.is_dir() else ""))
     fmt = format or guess_format(path)
+    limit = MAX_ATOMS if max_atoms is None else int(max_atoms)
     try:
-        return _module(fmt).read(path, **options)
+        if fmt == "cif":
+            options["max_atoms"] = limit
+        crystal = _module(fmt).read(path, **options)
+        if crystal.n_atoms > limit:
+            raise StructureError(f"the cell holds {crystal.n_atoms} atoms, more than the limit of {limit}; raise it "
+                                 "with --max-atoms if this is intended")
+        return crystal
     except ScreenerError as exc:
         msg = str(exc)
         if msg.startswith(str(path)):
@@ -69,6 +82,12 @@ def read_structure(path: str | Path, format: str | None = None, **options) -> Cr
     except (UnicodeDecodeError, OSError) as exc:
         # readers decode and open files themselves; this is the net for what they did not foresee
         raise FormatError(f"{path}: cannot read the file as {fmt}: {exc}") from exc
+    except RecursionError as exc:
+        raise FormatError(f"{path}: the {fmt} content is nested too deeply to be a structure") from exc
+    except (ValueError, OverflowError, ArithmeticError, IndexError, KeyError, TypeError, AttributeError) as exc:
+        # a malformed file that slipped past the reader's own checks: still one clear line naming the file
+        reason = str(exc).splitlines()[0][:200] if str(exc) else type(exc).__name__
+        raise FormatError(f"{path}: could not be read as {fmt}: {reason}") from exc
 
 
 def write_structure(crystal: Crystal, path: str | Path, format: str | None = None, **options) -> None:

@@ -27,6 +27,9 @@ from screener.structure.elements import normalise_symbol
 #: Sites closer than this (Å) after symmetry expansion are one site listed twice (same element) or a mixed
 #: site (different elements). Well below any bond, well above rounding of coordinates printed to 4 digits.
 MERGE_TOL_A = 0.2
+#: Default largest number of atoms a structure file may expand to (raise with --max-atoms): beyond it every later
+#: stage (neighbours, symmetry, bands) needs minutes and gigabytes. Common practice, no source.
+MAX_ATOMS = 2000
 #: Occupancies this close to 1 count as full (files often print 0.999 or 1.00(1)).
 OCCUPANCY_TOL = 0.02
 
@@ -34,7 +37,8 @@ _CELL_TAGS = ("_cell_length_a", "_cell_length_b", "_cell_length_c",
               "_cell_angle_alpha", "_cell_angle_beta", "_cell_angle_gamma")
 
 
-def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
+def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DISTANCE_A,
+         max_atoms: int | None = None) -> Crystal:
     """Read an ordered crystal structure from a CIF file.
 
     Parameters
@@ -67,7 +71,7 @@ def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DI
                 f"site {lab} has occupancy {o:g}: screener needs an ordered structure (every site fully "
                 "occupied by one element); choose one ordered arrangement, e.g. an ordered supercell"
             )
-    frac_all, species_all, labels_all = _expand(frac, species, labels, ops, lattice)
+    frac_all, species_all, labels_all = _expand(frac, species, labels, ops, lattice, max_atoms)
     return Crystal(lattice, frac_all, species_all, labels_all, min_distance_A=min_distance_A)
 
 
@@ -134,6 +138,8 @@ def lattice_from_parameters(a, b, c, alpha, beta, gamma) -> np.ndarray:
 # ------------------------------------------------------------------------------------------------ helpers
 def _read_text(path: Path) -> str:
     data = Path(path).read_bytes()
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]  # a UTF-8 byte-order mark, written by some editors: not part of the CIF text
     if not data.strip():
         raise FormatError("file is empty; expected a CIF with a data_ block, a cell and atom sites")
     if b"\x00" in data:
@@ -268,47 +274,97 @@ def _asymmetric_unit(blk):
     return out_labels, species, frac, occ
 
 
-def _expand(frac, species, labels, ops, lattice):
-    """Apply every operation to every asymmetric site; merge images closer than MERGE_TOL_A."""
+def _expand(frac, species, labels, ops, lattice, max_atoms=None):
+    """Apply every operation to every asymmetric site; merge images closer than MERGE_TOL_A.
+
+    Images are processed in file order: an image that lands within MERGE_TOL_A of an earlier kept image is the
+    same atom (a special position, or a site listed twice) and is dropped; if the two differ in element it is a
+    mixed site (error). Distinct labelled sites that merge although more than 0.01 Å apart get a warning naming
+    both. Close pairs come from a k-d tree over the images plus copies across the cell faces, so the merge
+    scales as N log N in the number of images.
+    """
+    import warnings
+
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+    from scipy.spatial import cKDTree
+
+    from screener.errors import ScreenerWarning
+
     rot = np.array([r for r, _ in ops])
     tran = np.array([t for _, t in ops])
-    out_f = np.empty((0, 3))
-    out_s: list[str] = []
-    out_l: list[str] = []
-    for f, el, lab in zip(frac, species, labels, strict=True):
-        images = rot @ f + tran
-        images -= np.floor(images)
-        # images of one site that coincide (special positions) collapse to the first of them
-        close = _periodic_distances(images, images, lattice) < MERGE_TOL_A
-        first = np.argmax(close, axis=1)
-        images = images[first == np.arange(len(images))]
-        if len(out_f):
-            clash = _periodic_distances(images, out_f, lattice) < MERGE_TOL_A
-            for m in np.flatnonzero(clash.any(axis=1)):
-                other = int(np.argmax(clash[m]))
-                if out_s[other] != el:
-                    raise StructureError(
-                        f"sites {out_l[other]} ({out_s[other]}) and {lab} ({el}) share one position: a mixed "
-                        "site; screener needs an ordered structure with one element per site"
-                    )
-            # the same site listed twice (e.g. an equivalent position copied into the file) is kept once
-            images = images[~clash.any(axis=1)]
-        out_f = np.vstack([out_f, images])
-        out_s += [el] * len(images)
-        out_l += [lab if len(images) == 1 else f"{lab}_{k + 1}" for k in range(len(images))]
+    frac = np.asarray(frac, dtype=float)
+    n_sites, n_ops = len(frac), len(ops)
+    max_atoms = MAX_ATOMS if max_atoms is None else int(max_atoms)
+    if n_sites * n_ops > 50 * max_atoms:
+        raise StructureError(f"{n_sites} sites under {n_ops} symmetry operators would make up to {n_sites * n_ops} "
+                             f"atoms, far beyond the limit of {max_atoms}; raise it with --max-atoms if intended")
+    images = np.einsum("oij,sj->soi", rot, frac) + tran[None, :, :]
+    images = (images - np.floor(images)).reshape(-1, 3)
+    site_of = np.repeat(np.arange(n_sites), n_ops)
+    # copies across faces: only images within the tolerance of a face can meet an image on the other side
+    delta = MERGE_TOL_A * np.linalg.norm(np.linalg.inv(lattice).T, axis=1)
+    idx_parts, shift_parts = [np.arange(len(images))], [np.zeros((len(images), 3))]
+    for t in _NEIGHBOUR_CELLS:
+        if not t.any():
+            continue
+        ok = np.ones(len(images), bool)
+        for a in range(3):
+            if t[a] > 0:
+                ok &= images[:, a] < delta[a]
+            elif t[a] < 0:
+                ok &= images[:, a] > 1 - delta[a]
+        sel = np.flatnonzero(ok)
+        idx_parts.append(sel)
+        shift_parts.append(np.broadcast_to(t, (len(sel), 3)))
+    idx = np.concatenate(idx_parts)
+    copies = (images[idx] + np.concatenate(shift_parts)) @ lattice
+    tree = cKDTree(copies)
+    pairs = tree.query_ball_point(images @ lattice, r=MERGE_TOL_A, return_sorted=False)
+    # images joined by close pairs form one atom; it keeps the first image in file order
+    rows = np.repeat(np.arange(len(images)), [len(p) for p in pairs])
+    cols = idx[np.concatenate([np.asarray(p, dtype=int) for p in pairs])] if len(rows) else rows
+    graph = coo_matrix((np.ones(len(rows)), (rows, cols)), shape=(len(images), len(images)))
+    _, group = connected_components(graph, directed=False)
+    first = np.full(group.max() + 1, len(images))
+    np.minimum.at(first, group, np.arange(len(images)))
+    rep = first[group]
+    keep = rep == np.arange(len(images))
+    if len(np.flatnonzero(keep)) > max_atoms:
+        raise StructureError(f"the symmetry operators make {int(keep.sum())} atoms in the cell, more than the limit "
+                             f"of {max_atoms}; raise it with --max-atoms if this is intended")
+    site_rep = site_of[rep]
+    mixed = np.flatnonzero(np.array(species, dtype=object)[site_of] != np.array(species, dtype=object)[site_rep])
+    if len(mixed):
+        a, b = site_rep[mixed[0]], site_of[mixed[0]]
+        raise StructureError(
+            f"sites {labels[a]} ({species[a]}) and {labels[b]} ({species[b]}) share one position: a "
+            "mixed site; screener needs an ordered structure with one element per site"
+        )
+    cross = np.flatnonzero(site_rep != site_of)
+    if len(cross):
+        d = frac_distance_A(images[cross], images[rep[cross]], lattice)
+        far = cross[d > 0.01]
+        for a, b in sorted({(int(site_rep[m]), int(site_of[m])) for m in far})[:5]:
+            warnings.warn(f"sites {labels[a]} and {labels[b]} ({species[b]}) are closer than {MERGE_TOL_A} Å after "
+                          "symmetry expansion and were merged into one atom", ScreenerWarning, stacklevel=2)
+    out_f = images[keep]
+    kept_site = site_of[keep]
+    counts = np.bincount(kept_site, minlength=n_sites)
+    out_s = [species[s] for s in kept_site]
+    out_l, seen = [], np.zeros(n_sites, int)
+    for s in kept_site:
+        seen[s] += 1
+        out_l.append(labels[s] if counts[s] == 1 else f"{labels[s]}_{seen[s]}")
     return out_f, out_s, out_l
 
 
 _NEIGHBOUR_CELLS = np.array([[a, b, c] for a in (-1, 0, 1) for b in (-1, 0, 1) for c in (-1, 0, 1)], dtype=float)
 
 
-def _periodic_distances(f1, f2, lattice) -> np.ndarray:
-    """(len(f1), len(f2)) shortest distances over the 27 nearest cell translations, Å."""
-    out = np.empty((len(f1), len(f2)))
-    step = 256  # bounds the (n1, step, 27, 3) temporary for large cells
-    for start in range(0, len(f2), step):
-        d = f1[:, None, :] - f2[None, start:start + step, :]
-        d -= np.round(d)
-        cart = (d[:, :, None, :] + _NEIGHBOUR_CELLS[None, None, :, :]) @ lattice
-        out[:, start:start + step] = np.linalg.norm(cart, axis=-1).min(axis=-1)
-    return out
+def frac_distance_A(f1, f2, lattice) -> np.ndarray:
+    """Shortest periodic distance (Å) between matching rows of two fractional arrays (27 nearest translations)."""
+    d = f1 - f2
+    d -= np.round(d)
+    cart = (d[:, None, :] + _NEIGHBOUR_CELLS[None, :, :]) @ lattice
+    return np.linalg.norm(cart, axis=-1).min(axis=-1)

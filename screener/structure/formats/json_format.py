@@ -37,7 +37,7 @@ def read(path: Path, *, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
     if not data.strip():
         raise FormatError("file is empty; expected a JSON object with lattice_A and sites")
     try:
-        obj = json.loads(data.decode("utf-8"))
+        obj = json.loads(data.decode("utf-8-sig"))
     except UnicodeDecodeError as exc:
         raise FormatError(f"file is not UTF-8 text (byte {exc.start}); expected JSON") from None
     except json.JSONDecodeError as exc:
