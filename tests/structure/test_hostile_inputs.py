@@ -95,3 +95,24 @@ def test_binary_garbage_is_a_format_error(tmp_path):
     p = _write(tmp_path, "garbage.cif", bytes(range(256)) * 4)
     with pytest.raises(FormatError, match="garbage.cif"):
         read_structure(p)
+
+
+@pytest.mark.parametrize("occ", ["0,5", "half", "2", "1.5"])
+def test_unparseable_or_excess_occupancy_is_an_error_naming_the_site(tmp_path, occ):
+    # occupancy is a fraction 0..1 (IUCr CIF dictionary, _atom_site_occupancy)
+    text = AL + "_atom_site_occupancy\nAl1 Al 0 0 0 " + occ + "\n"
+    with pytest.raises(ScreenerError, match="site Al1: occupancy"):
+        read_structure(_write(tmp_path, "occ.cif", text))
+
+
+@pytest.mark.parametrize("occ", ["?", "."])
+def test_null_occupancy_means_unknown_and_reads_as_full(tmp_path, occ):
+    # '?' and '.' are the CIF 1.1 null values (IUCr CIF 1.1 syntax specification)
+    text = AL + "_atom_site_occupancy\nAl1 Al 0 0 0 " + occ + "\n"
+    assert read_structure(_write(tmp_path, "occ.cif", text)).n_atoms == 4
+
+
+@pytest.mark.parametrize("x", ["1e6", "1e20", "-11"])
+def test_coordinates_far_outside_the_cell_are_an_error(tmp_path, x):
+    with pytest.raises(StructureError, match="site Al1: fractional coordinate x"):
+        read_structure(_write(tmp_path, "far.cif", AL + f"Al1 Al {x} 0 0\n"))

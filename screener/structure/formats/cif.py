@@ -262,14 +262,25 @@ def _asymmetric_unit(blk):
             value = gemmi.cif.as_number(col[k])
             if not math.isfinite(value):
                 raise FormatError(f"site {lab}: fractional coordinate {'xyz'[d]} is {col[k]!r}, expected a number")
+            if abs(value) > 10:
+                # far outside the cell: almost surely a corrupted number, and wrapping it would hide that
+                raise StructureError(f"site {lab}: fractional coordinate {'xyz'[d]} = {col[k]} is outside -10..10")
             frac[k, d] = value
         symbol = gemmi.cif.as_string(types[k]) if types else labels[k]
         try:
             species.append(normalise_symbol(symbol))
         except ScreenerError as exc:
             raise StructureError(f"site {lab}: {exc}") from None
-        o = gemmi.cif.as_number(occs[k]) if occs else 1.0
-        occ.append(1.0 if not math.isfinite(o) else o)  # '?' or '.' occupancy means unknown -> full
+        raw = occs[k] if occs else "?"
+        if gemmi.cif.is_null(raw):
+            o = 1.0  # '?' (unknown) or '.' (inapplicable) occupancy: CIF 1.1 null values, read as full
+        else:
+            o = gemmi.cif.as_number(raw)
+            if not math.isfinite(o):
+                raise FormatError(f"site {lab}: occupancy {raw!r} is not a number such as 1 or 0.98(2)")
+            if o > 1 + 1e-3 or o < 0:
+                raise StructureError(f"site {lab}: occupancy {raw} is outside 0..1")
+        occ.append(o)
         out_labels.append(lab)
     return out_labels, species, frac, occ
 
