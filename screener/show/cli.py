@@ -10,10 +10,21 @@ from pathlib import Path
 from screener.errors import ScreenerError
 
 
+def _finite_float(text: str) -> float:
+    """argparse type: a finite number (inf, nan and numbers beyond the float range are refused)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if value != value or value in (float("inf"), float("-inf")):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
+    return value
+
+
 def _add_structure_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", help="structure file (CIF or screener JSON)")
     p.add_argument("--format", choices=["cif", "json"], help="override the format guessed from the name")
-    p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
+    p.add_argument("--symprec", type=_finite_float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
     p.add_argument("--max-atoms", type=int, default=None,
                    help="largest number of atoms the structure may have after symmetry expansion (default 2000)")
 
@@ -25,7 +36,12 @@ def _read(args):
 
 
 def _print_json(obj) -> None:
-    print(json.dumps(obj, indent=2))
+    try:
+        text = json.dumps(obj, indent=2, allow_nan=False)
+    except ValueError:
+        raise ScreenerError("the result contains a non-finite number (NaN or infinity); the input or the "
+                            "settings are outside what the model can handle") from None
+    print(text)
 
 
 # ---------------------------------------------------------------------------------------------- info
@@ -354,16 +370,16 @@ def _add_rank_options(p: argparse.ArgumentParser) -> None:
                    help=f"candidate generator to run, one of {', '.join(GENERATORS)} (repeatable; default: all that "
                         "apply)")
     p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
-    p.add_argument("--pair-exponent", type=float, default=4.0, help="exponent m of the pair repulsion (default 4)")
-    p.add_argument("--bulk-modulus-GPa", type=float,
+    p.add_argument("--pair-exponent", type=_finite_float, default=4.0, help="exponent m of the pair repulsion (default 4)")
+    p.add_argument("--bulk-modulus-GPa", type=_finite_float,
                    help="the parent's bulk modulus in GPa (default: bundled table of measured values, else an estimate)")
     p.add_argument("--closure", choices=["bulk-modulus", "equilibrium"], default="bulk-modulus",
                    help="elastic closure: fitted to equilibrium and the bulk modulus (default), or to equilibrium "
                         "alone with the fixed --pair-exponent")
-    p.add_argument("--k-step", type=float, default=0.2,
+    p.add_argument("--k-step", type=_finite_float, default=0.2,
                    help="starting step between k-points along each reciprocal vector, 1/Å with 2π included "
                         "(default 0.2)")
-    p.add_argument("--threshold-meV", type=float, default=1.0,
+    p.add_argument("--threshold-meV", type=_finite_float, default=1.0,
                    help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
     p.add_argument("--relax-cell", action="store_true",
                    help="relax the rhombohedral angle together with the rhombohedral split (slower)")
@@ -413,7 +429,7 @@ def build_parser() -> argparse.ArgumentParser:
                                                    "ΔE against a descriptor")
     p.add_argument("--descriptor", choices=["volume-per-atom", "electrons-per-atom"], default="volume-per-atom",
                    help="descriptor of the report's ΔE plot (default volume-per-atom)")
-    p.add_argument("--symprec", type=float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
+    p.add_argument("--symprec", type=_finite_float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
     _add_rank_options(p)
     p.set_defaults(func=cmd_batch)
 
@@ -427,9 +443,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--parent", help="parent structure file (default: the highest-symmetry parent found)")
     p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
     p.add_argument("--plot", metavar="DIR", help="write the path-energy and bond figures into this folder")
-    p.add_argument("--max-displacement", type=float, default=None,
+    p.add_argument("--max-displacement", type=_finite_float, default=None,
                    help="largest atomic displacement to the parent, Å (default 0.4)")
-    p.add_argument("--max-strain", type=float, default=None, help="largest lattice strain to the parent (default 0.08)")
+    p.add_argument("--max-strain", type=_finite_float, default=None, help="largest lattice strain to the parent (default 0.08)")
     p.set_defaults(func=cmd_explain)
 
     p = sub.add_parser("modes", help="stiffness Φ(q), soft patterns and χ0 of the parent over a q grid")
@@ -437,7 +453,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--plot", help="write the lowest stiffness and χ0 per searched q to this PNG file")
     p.add_argument("--q-grid", type=int, default=4, help="largest denominator of q along each direction (default 4)")
-    p.add_argument("--electrons", type=float, help="valence electrons per primitive cell (rigid-band filling)")
+    p.add_argument("--electrons", type=_finite_float, help="valence electrons per primitive cell (rigid-band filling)")
     p.set_defaults(func=cmd_modes)
     return parser
 

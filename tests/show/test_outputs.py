@@ -1,6 +1,7 @@
 """Output paths are checked before the work, and the safety line says which element is which hazard."""
 
 import numpy as np
+import pytest
 
 from screener.show.cli import main
 from screener.structure.crystal import Crystal
@@ -33,3 +34,15 @@ def test_safety_line_says_which_element_is_toxic_and_which_radioactive():
     assert "Pb, Te (toxic)" in line and "Po (radioactive)" in line
     assert safety_note(Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Sb"])).startswith("Contains Sb (toxic)")
     assert safety_note(Crystal(np.eye(3) * 3.0, [[0, 0, 0]], ["Na"])) == ""
+
+
+@pytest.mark.parametrize("value", ["inf", "nan", "-inf", "1e309"])
+def test_non_finite_option_values_are_refused_at_parse_time(value, capsys):
+    # a step of inf or nan would reach the JSON output as NaN (invalid JSON, RFC 8259 section 6)
+    from pathlib import Path
+
+    demo = Path(__file__).resolve().parents[2] / "demo_structures" / "As_simple_cubic.cif"
+    with pytest.raises(SystemExit) as info:
+        main(["rank", str(demo), f"--k-step={value}"])
+    assert info.value.code == 2
+    assert "not a finite number" in capsys.readouterr().err
