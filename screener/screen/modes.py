@@ -62,7 +62,7 @@ class Stiffness:
 # ---------------------------------------------------------------------------------------------- bond blocks
 def _bond_data(model):
     """Per bond: atom i, atom j, image R, Cartesian vector d, and a function d → (p, norb, norb) padded blocks."""
-    from screener.tb.slater_koster import reverse_parameters, sk_block
+    from screener.tb.model import bond_blocks
 
     crystal, params = model.crystal, model.params
     if model.spin_degeneracy != 2:
@@ -72,23 +72,12 @@ def _bond_data(model):
     cart = vec_frac @ crystal.lattice_A
     norb = model.n_orbitals
     offset = np.searchsorted(model.orbital_site, np.arange(crystal.n_atoms))
-    groups: dict[tuple[str, str], list[int]] = {}
-    for k, (ia, ja) in enumerate(zip(b.i, b.j, strict=True)):
-        groups.setdefault((crystal.species[ia], crystal.species[ja]), []).append(k)
-
     def blocks(d_cart: np.ndarray) -> np.ndarray:
         """(p, norb, norb) block of each bond at bond vectors d_cart, padded into the [i-orbitals, j-orbitals] place."""
         out = np.zeros((len(d_cart), norb, norb))
-        for (sa, sb), members in groups.items():
-            m = np.array(members)
-            bp = params.bond(sa, sb)
-            hop = bp.hoppings(np.linalg.norm(d_cart[m], axis=1))
-            if bp.pair[0] != sa:
-                hop = reverse_parameters(hop)
-            oa, ob = params.species(sa).orbitals, params.species(sb).orbitals
-            blk = sk_block(d_cart[m], oa, ob, hop)
-            rows = offset[b.i[m]][:, None] + np.arange(len(oa))[None, :]
-            cols = offset[b.j[m]][:, None] + np.arange(len(ob))[None, :]
+        for m, blk in bond_blocks(crystal, params, b, d_cart):
+            rows = offset[b.i[m]][:, None] + np.arange(blk.shape[1])[None, :]
+            cols = offset[b.j[m]][:, None] + np.arange(blk.shape[2])[None, :]
             out[m[:, None, None], rows[:, :, None], cols[:, None, :]] = blk
         return out
 

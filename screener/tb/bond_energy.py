@@ -14,12 +14,11 @@ Evaluated on the full mesh (no symmetry folding: a single bond is not invariant 
 
 from __future__ import annotations
 
-from collections import defaultdict
 from dataclasses import dataclass
 
 import numpy as np
 
-from screener.tb.slater_koster import reverse_parameters, sk_block
+from screener.tb.model import bond_blocks
 
 #: Gaussian width used for the population at the Fermi level, eV (common practice, no source).
 EF_WIDTH_EV = 0.1
@@ -59,18 +58,8 @@ def _bond_blocks(model):
     site = np.asarray(model.orbital_site)
     spin = model.spin_degeneracy == 1
     vec = (crystal.frac[bonds.j] + bonds.image - crystal.frac[bonds.i]) @ crystal.lattice_A
-    dist = np.linalg.norm(vec, axis=1)
-    groups = defaultdict(list)
-    for b, (ia, ja) in enumerate(zip(bonds.i, bonds.j, strict=True)):
-        groups[(crystal.species[ia], crystal.species[ja])].append(b)
     out = []
-    for (a, b), members in groups.items():
-        m = np.array(members)
-        bp = params.bond(a, b)
-        hop = bp.hoppings(dist[m])
-        if bp.pair[0] != a:
-            hop = reverse_parameters(hop)
-        blocks = sk_block(vec[m], params.species(a).orbitals, params.species(b).orbitals, hop)
+    for m, blocks in bond_blocks(crystal, params, bonds, vec):
         if spin:  # spin–orbit basis: spin innermost, hoppings spin-diagonal
             blocks = np.einsum("pab,st->pasbt", blocks, np.eye(2)).reshape(len(m), 2 * blocks.shape[1],
                                                                          2 * blocks.shape[2])

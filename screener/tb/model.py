@@ -114,6 +114,26 @@ def _as_kpoints(kfrac) -> np.ndarray:
     return k
 
 
+def bond_blocks(crystal, params, bonds, cart_A) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Slater–Koster block of every bond at the bond vectors ``cart_A`` (p, 3), grouped by ordered species pair.
+
+    Returns [(bond indices m, blocks (len(m), na, nb))], one entry per pair, in order of first appearance; the
+    hoppings follow each pair's distance law at |cart_A|, with the pair's parameters reversed when the bond runs B→A.
+    """
+    groups = defaultdict(list)
+    for b, (ia, ja) in enumerate(zip(bonds.i, bonds.j, strict=True)):
+        groups[(crystal.species[ia], crystal.species[ja])].append(b)
+    out = []
+    for (a, b), members in groups.items():
+        m = np.array(members)
+        bp = params.bond(a, b)
+        hop = bp.hoppings(np.linalg.norm(cart_A[m], axis=1))
+        if bp.pair[0] != a:
+            hop = reverse_parameters(hop)
+        out.append((m, sk_block(cart_A[m], params.species(a).orbitals, params.species(b).orbitals, hop)))
+    return out
+
+
 def build_model(crystal: Crystal, params: ParameterSet | None = None, *, bonds: BondList | None = None
                 ) -> TightBindingModel:
     """Tight-binding model of ``crystal``.
@@ -165,21 +185,11 @@ def build_model(crystal: Crystal, params: ParameterSet | None = None, *, bonds: 
     dist = np.linalg.norm(cart, axis=1)
     if len(bonds) and dist.min() < 1e-6:
         raise StructureError("a bond has zero length in this geometry; atoms coincide")
-    groups = defaultdict(list)
-    for b, (ia, ja) in enumerate(zip(bonds.i, bonds.j, strict=True)):
-        groups[(crystal.species[ia], crystal.species[ja])].append(b)
     ridx = np.array([index[tuple(r)] for r in image], dtype=int) if len(bonds) else np.zeros(0, int)
     rneg = np.array([index[tuple(-r)] for r in image], dtype=int) if len(bonds) else np.zeros(0, int)
-    for (a, b), members in groups.items():
-        m = np.array(members)
-        bp = params.bond(a, b)
-        hop = bp.hoppings(dist[m])
-        if bp.pair[0] != a:
-            hop = reverse_parameters(hop)
-        oa, ob = params.species(a).orbitals, params.species(b).orbitals
-        blocks = sk_block(cart[m], oa, ob, hop)  # (p, na, nb)
-        rows = offset[bonds.i[m]][:, None] + np.arange(len(oa))[None, :]
-        cols = offset[bonds.j[m]][:, None] + np.arange(len(ob))[None, :]
+    for m, blocks in bond_blocks(crystal, params, bonds, cart):  # blocks (p, na, nb)
+        rows = offset[bonds.i[m]][:, None] + np.arange(blocks.shape[1])[None, :]
+        cols = offset[bonds.j[m]][:, None] + np.arange(blocks.shape[2])[None, :]
         np.add.at(HR, (ridx[m][:, None, None], rows[:, :, None], cols[:, None, :]), blocks)
         np.add.at(HR, (rneg[m][:, None, None], cols[:, :, None], rows[:, None, :]), np.swapaxes(blocks, 1, 2))
 
