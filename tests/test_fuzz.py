@@ -4,6 +4,9 @@ Every mutant must end in exit 0 (valid JSON, nothing on stderr but warnings) or 
 the file — never a traceback, another exit code, a hang or a memory blow-up (tests/fuzzing.py says how mutants are
 made and judged). The seed is fixed so a failure is reproducible; set SCREENER_FUZZ_SEED to explore other seeds and
 SCREENER_FUZZ_N to change the number of structure mutants. benchmarks/fuzz.py runs ten thousand and more.
+
+Sources of the expectations: JSON without NaN or Infinity is RFC 8259 section 6; exit 2 with one line naming the
+file is this tool's own command-line contract (common practice, no source).
 """
 
 import os
