@@ -27,3 +27,14 @@ class ConvergenceError(ScreenerError, RuntimeError):
 
 class ScreenerWarning(UserWarning):
     """Something in the input was accepted but is probably not what the user meant (unused section, fallback)."""
+
+
+class StructureWarning(ScreenerWarning):
+    """A structure file was read, but perhaps not as its author meant (listed sites merged, an origin choice
+    assumed, contacts far shorter than bonds, symmetry missing or inconsistent). ``kind`` names the case and
+    ``details`` carries its numbers; the CLI's ``--strict`` turns these into errors."""
+
+    def __init__(self, message: str, kind: str = "structure", **details):
+        super().__init__(message)
+        self.kind = kind
+        self.details = details

@@ -7,7 +7,7 @@ import json
 import sys
 from pathlib import Path
 
-from screener.errors import ScreenerError
+from screener.errors import ScreenerError, StructureError
 
 
 def _finite_float(text: str) -> float:
@@ -27,12 +27,30 @@ def _add_structure_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--symprec", type=_finite_float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
     p.add_argument("--max-atoms", type=int, default=None,
                    help="largest number of atoms the structure may have after symmetry expansion (default 2000)")
+    p.add_argument("--strict", action="store_true",
+                   help="treat doubts about the structure file (merged listed sites, an assumed origin choice, "
+                        "implausibly short contacts, missing or inconsistent symmetry) as errors")
 
 
 def _read(args):
+    """Read the structure; its reading warnings are shown only when the read succeeds (an error says enough),
+    kept as ``args.read_notes`` for the JSON output, and with ``--strict`` they are errors."""
+    import warnings
+
+    from screener.errors import StructureWarning
     from screener.structure.formats import read_structure
 
-    return read_structure(args.file, format=args.format, max_atoms=args.max_atoms)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        crystal = read_structure(args.file, format=args.format, max_atoms=args.max_atoms)
+    args.read_notes = []
+    for w in caught:
+        if issubclass(w.category, StructureWarning):
+            if getattr(args, "strict", False):
+                raise StructureError(f"{w.message} (an error with --strict)")
+            args.read_notes.append({"kind": w.message.kind, "message": str(w.message), **w.message.details})
+        warnings.showwarning(w.message, w.category, w.filename, w.lineno)
+    return crystal
 
 
 def _print_json(obj) -> None:
@@ -53,7 +71,9 @@ def cmd_info(args) -> int:
     ``volume_per_atom_A3``}, ``sites`` [{``label``, ``element``, ``frac``, ``wyckoff`` (multiplicity + letter
     in the conventional cell), ``orbit`` (label of the first symmetry-equivalent atom)}], ``valence_electrons``
     (per cell, default counts), ``neighbour_shells_A`` [{``distance_A``, ``count_per_atom``}] (shells up to 1.6 ×
-    the shortest contact, counts averaged over all atoms). The object also reads back as a screener JSON structure.
+    the shortest contact, counts averaged over all atoms), ``merged_sites`` [{``labels``, ``distance_A``}] (distinct
+    listed sites read as one atom) and ``read_notes`` [{``kind``, ``message``, …}] (every doubt about the file, as
+    also printed on stderr). The object also reads back as a screener JSON structure.
     """
     import numpy as np
 
@@ -89,6 +109,9 @@ def cmd_info(args) -> int:
         ],
         "valence_electrons": n_val,
         "neighbour_shells_A": [{"distance_A": s.distance_A, "count_per_atom": s.count_per_atom} for s in shells],
+        "merged_sites": [{"labels": n["labels"], "distance_A": n["distance_A"]}
+                         for n in args.read_notes if n["kind"] == "merged_sites"],
+        "read_notes": args.read_notes,
     }
     if args.json:
         _print_json(summary)
@@ -280,6 +303,7 @@ def cmd_rank(args) -> int:
     if args.json:
         out = result.to_dict()
         out["file"] = str(args.file)
+        out["read_notes"] = args.read_notes
         if written:
             out["structures_written"] = [str(p) for p in written]
         _print_json(out)

@@ -129,3 +129,61 @@ def nearest_neighbour_bonds(crystal, tolerance: float = FIRST_SHELL_TOLERANCE, n
     np.minimum.at(dmin_i, nl.i, nl.distance_A)
     keep = nl.distance_A <= dmin_i[nl.i] * (1 + tolerance)
     return type(nl)(nl.i[keep], nl.j[keep], nl.image[keep], nl.vector_A[keep], nl.distance_A[keep])
+
+
+#: A contact shorter than this fraction of the sum of the two covalent radii is implausible for a solid: it is
+#: usually a wrong origin choice, a wrong cell or a corrupted coordinate (common practice, no source).
+SHORT_CONTACT_FRACTION = 0.75
+
+
+def short_contacts(crystal, fraction: float = SHORT_CONTACT_FRACTION) -> list[tuple[str, str, float, float]]:
+    """Pairs of sites closer than ``fraction`` × the sum of their covalent radii (Cordero et al. 2008).
+
+    Returns (label_i, label_j, distance_A, radii_sum_A) for the shortest such contact of each species pair,
+    shortest first. Elements without a tabulated radius are skipped.
+    """
+    from screener.structure.elements import COVALENT_RADIUS_A
+
+    radii = np.array([COVALENT_RADIUS_A.get(s, np.nan) for s in crystal.species])
+    if not np.isfinite(radii).any():
+        return []
+    cutoff = fraction * 2 * float(np.nanmax(radii))
+    nl = find_neighbours(crystal.lattice_A, crystal.frac, cutoff, include_zero=True)
+    if not len(nl.distance_A):
+        return []
+    limit = fraction * (radii[nl.i] + radii[nl.j])
+    bad = np.flatnonzero(nl.distance_A < limit)  # NaN limits compare False: no radius, no check
+    found: dict[tuple[str, str], tuple[str, str, float, float]] = {}
+    for k in bad[np.argsort(nl.distance_A[bad])]:
+        i, j = int(nl.i[k]), int(nl.j[k])
+        pair = tuple(sorted((crystal.species[i], crystal.species[j])))
+        if pair not in found:
+            found[pair] = (crystal.labels[i], crystal.labels[j], float(nl.distance_A[k]),
+                           float(radii[i] + radii[j]))
+    return sorted(found.values(), key=lambda x: x[2])
+
+
+def contact_ratio(crystal) -> float:
+    """Smallest distance / (sum of covalent radii) over all pairs up to 1.5 × that sum; inf when none is that close."""
+    from screener.structure.elements import COVALENT_RADIUS_A
+
+    radii = np.array([COVALENT_RADIUS_A.get(s, np.nan) for s in crystal.species])
+    if not np.isfinite(radii).any():
+        return float("inf")
+    nl = find_neighbours(crystal.lattice_A, crystal.frac, 3 * float(np.nanmax(radii)), include_zero=True)
+    ratio = nl.distance_A / (radii[nl.i] + radii[nl.j])
+    ratio = ratio[np.isfinite(ratio)]
+    return float(ratio.min()) if len(ratio) else float("inf")
+
+
+def warn_short_contacts(crystal, hint: str = "") -> None:
+    """A StructureWarning for each species pair whose shortest contact is implausibly short (see short_contacts)."""
+    import warnings
+
+    from screener.errors import StructureWarning
+
+    for a, b, d, r in short_contacts(crystal):
+        warnings.warn(StructureWarning(
+            f"sites {a} and {b} are only {d:.3f} Å apart, less than {SHORT_CONTACT_FRACTION:g} × the sum of their "
+            f"covalent radii ({r:.2f} Å, Cordero et al. 2008): the structure is probably not what the file "
+            f"means{hint}", "short_contact", labels=[a, b], distance_A=d, radii_sum_A=r), stacklevel=3)

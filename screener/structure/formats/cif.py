@@ -23,6 +23,7 @@ import numpy as np
 from screener.errors import FormatError, ScreenerError, StructureError
 from screener.structure.crystal import MIN_DISTANCE_A, Crystal
 from screener.structure.elements import normalise_symbol
+from screener.structure.neighbours import warn_short_contacts
 
 #: Sites closer than this (Å) after symmetry expansion are one site listed twice (same element) or a mixed
 #: site (different elements). Well below any bond, well above rounding of coordinates printed to 4 digits.
@@ -63,7 +64,7 @@ def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DI
         small = gemmi.make_small_structure_from_block(blk)
     except (RuntimeError, ValueError, IndexError) as exc:
         raise FormatError(f"data block {blk.name!r}: {_parser_message(exc)}") from None
-    ops = _operations(small, blk, lattice)
+    ops, hint = _operations(small, blk, lattice)
     labels, species, frac, occ = _asymmetric_unit(blk)
     for lab, o in zip(labels, occ, strict=True):
         if o < 1 - OCCUPANCY_TOL:
@@ -72,7 +73,11 @@ def read(path: Path, *, block: str | None = None, min_distance_A: float = MIN_DI
                 "occupied by one element); choose one ordered arrangement, e.g. an ordered supercell"
             )
     frac_all, species_all, labels_all = _expand(frac, species, labels, ops, lattice, max_atoms)
-    return Crystal(lattice, frac_all, species_all, labels_all, min_distance_A=min_distance_A)
+    crystal = Crystal(lattice, frac_all, species_all, labels_all, min_distance_A=min_distance_A)
+    if hint:
+        _compare_origin_choices(crystal, hint, frac, species, labels, lattice, max_atoms, min_distance_A)
+    warn_short_contacts(crystal, "; " + hint if hint else "")
+    return crystal
 
 
 def write(crystal: Crystal, path: Path, *, title: str | None = None) -> None:
@@ -201,10 +206,18 @@ def _lattice(blk) -> np.ndarray:
     return lat
 
 
-def _operations(small, blk, lattice) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Symmetry operations as (rotation 3x3, translation 3) in fractional coordinates."""
+def _operations(small, blk, lattice) -> tuple[list[tuple[np.ndarray, np.ndarray]], str]:
+    """Symmetry operations as (rotation 3x3, translation 3) in fractional coordinates, and a hint for the
+    short-contact warning (the other origin choice, when one was assumed).
+
+    An operator loop must form a group (every rotation of determinant ±1, closed under composition); when the
+    file also states a space-group symbol, operators describing another group give a warning (the operators are
+    used). A symbol with two origin choices and no qualifier is read in origin choice 2 (inversion centre at the
+    origin), with a warning saying so. A file without any symmetry information is read as P1, with a warning.
+    """
     import gemmi
 
+    stated, assumed = _stated_group(small, blk, lattice)
     if small.symops:
         ops = []
         for triplet in small.symops:
@@ -212,26 +225,152 @@ def _operations(small, blk, lattice) -> list[tuple[np.ndarray, np.ndarray]]:
                 ops.append(gemmi.Op(triplet))
             except (RuntimeError, ValueError) as exc:
                 raise FormatError(f"symmetry operator {triplet!r} cannot be read: {_parser_message(exc)}") from None
-    else:
-        sg = small.spacegroup
-        if sg is None:
-            hm = (small.spacegroup_hm or "").strip()
-            hall = (small.spacegroup_hall or "").strip()
-            if hm or hall:
-                raise FormatError(
-                    f"space group {hm or hall!r} is not a Hermann–Mauguin or Hall symbol the CIF reader knows; "
-                    "list the symmetry operators in a _space_group_symop_operation_xyz loop or fix the symbol"
-                )
-            number = small.spacegroup_number
-            if number and number > 0:
-                sg = gemmi.find_spacegroup_by_number(number)
-                if sg is not None and sg.hm.startswith("R"):
-                    a, b, c, alpha, beta, gamma = cell_parameters(lattice)
-                    sg = gemmi.find_spacegroup_by_name(sg.hm, alpha=alpha, gamma=gamma)
-            if sg is None:
-                return [(np.eye(3), np.zeros(3))]  # no symmetry information at all: P1
-        ops = list(sg.operations())
+        out = _as_arrays(ops)
+        _check_group(out, list(small.symops))
+        if stated is not None:
+            _compare_with_symbol(ops, stated)
+        return out, ""
+    if stated is None:
+        _warn("the file gives no space group and no symmetry operators: read as P1, the listed sites being every "
+              "atom of the cell", "no_symmetry")
+        return [(np.eye(3), np.zeros(3))], ""
+    hint = f"{stated.hm}:1" if assumed else ""
+    return _as_arrays(list(stated.operations())), hint
+
+
+def _compare_origin_choices(crystal, other: str, frac, species, labels, lattice, max_atoms, min_distance_A) -> None:
+    """When origin choice 2 was assumed: warn if origin choice 1 (``other``) gives markedly more bond-like contacts
+    (shortest distance relative to the covalent radii), the usual sign that the file meant origin choice 1."""
+    import warnings
+
+    import gemmi
+
+    from screener.structure.neighbours import contact_ratio
+
+    ops = _as_arrays(list(gemmi.find_spacegroup_by_name(other).operations()))
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            f, s, lab = _expand(frac, species, labels, ops, lattice, max_atoms)
+            alt = Crystal(lattice, f, s, lab, min_distance_A=min_distance_A)
+    except ScreenerError:
+        return  # origin choice 1 is not even a valid reading: nothing to suggest
+    here, there = contact_ratio(crystal), contact_ratio(alt)
+    # a contact below 90 % of the covalent-radius sum where the other choice keeps every contact above it
+    # (common practice, no source)
+    if here < 0.9 <= there:
+        _warn(f"with origin choice 2 the shortest contact is {here:.2f} × the sum of covalent radii ({crystal.n_atoms} "
+              f"atoms); with origin choice 1 it would be {there:.2f} × ({alt.n_atoms} atoms): the file probably "
+              f"means origin choice 1 — write the symbol as '{other}' to use it", "origin_choice_suspect",
+              ratio_used=here, ratio_other=there)
+
+
+def _warn(message: str, kind: str, **details) -> None:
+    import warnings
+
+    from screener.errors import StructureWarning
+
+    warnings.warn(StructureWarning(message, kind, **details), stacklevel=3)
+
+
+def _as_arrays(ops) -> list[tuple[np.ndarray, np.ndarray]]:
     return [(np.array(op.rot, dtype=float) / op.DEN, np.array(op.tran, dtype=float) / op.DEN) for op in ops]
+
+
+def _stated_group(small, blk, lattice):
+    """(space group the file names by Hall, Hermann–Mauguin symbol or number, or None; whether an origin choice
+    had to be assumed)."""
+    import gemmi
+
+    hm = (small.spacegroup_hm or "").strip()
+    hall = (small.spacegroup_hall or "").strip()
+    if small.symops:
+        # the operators decide (the parser derives its group from them); the stated symbol is only compared
+        try:
+            named = gemmi.find_spacegroup_by_name(hm) if hm else None
+            if named is None and hall:
+                named = gemmi.find_spacegroup_by_ops(gemmi.symops_from_hall(hall))
+        except (RuntimeError, ValueError):
+            named = None
+        return named, False
+    sg = small.spacegroup
+    raw_hm = next((gemmi.cif.as_string(v) for v in (blk.find_value(t) for t in _HM_TAGS) if v is not None), "")
+    if ":" in raw_hm and not hall:
+        # an explicit setting qualifier (origin choice ':1'/':2', axes ':H'/':R') is honoured as written
+        qualified = gemmi.find_spacegroup_by_name(raw_hm.strip())
+        if qualified is not None:
+            sg, hm = qualified, raw_hm.strip()
+    if sg is None and (hm or hall):
+        raise FormatError(
+            f"space group {hm or hall!r} is not a Hermann–Mauguin or Hall symbol the CIF reader knows; "
+            "list the symmetry operators in a _space_group_symop_operation_xyz loop or fix the symbol"
+        )
+    if sg is None:
+        raw = blk.find_value("_space_group_IT_number") or blk.find_value("_symmetry_Int_Tables_number")
+        if raw is None or gemmi.cif.is_null(raw):
+            return None, False
+        number = gemmi.cif.as_number(raw)
+        if not (math.isfinite(number) and number == int(number) and 1 <= number <= 230):
+            raise FormatError(f"space-group number {raw} is not one of the 230 space groups (1 to 230)")
+        sg = gemmi.find_spacegroup_by_number(int(number))
+        if sg.hm.startswith("R"):
+            _, _, _, alpha, _, gamma = cell_parameters(lattice)
+            sg = gemmi.find_spacegroup_by_name(sg.hm, alpha=alpha, gamma=gamma)
+        hm = ""
+    if sg.ext in ("1", "2") and not hall and ":" not in hm and not small.symops:
+        if sg.ext != "2":
+            sg = gemmi.find_spacegroup_by_name(f"{sg.hm}:2")
+        _warn(f"space group {sg.hm.replace(' ', '')} has two origin choices and the file does not say which: "
+              "origin choice 2 (inversion centre at the origin) was used", "origin_choice", origin_choice=2,
+              space_group=sg.hm.replace(" ", ""))
+        return sg, True
+    return sg, False
+
+
+_HM_TAGS = ("_space_group_name_H-M_alt", "_symmetry_space_group_name_H-M", "_space_group.name_H-M_alt")
+
+
+def _check_group(ops, triplets) -> None:
+    """Every rotation has determinant ±1 and the operators are closed under composition (modulo translations)."""
+    rot = np.array([r for r, _ in ops])
+    tran = np.array([t for _, t in ops])
+    det = np.linalg.det(rot)
+    bad = np.flatnonzero(np.abs(np.abs(det) - 1) > 1e-6)
+    if len(bad):
+        k = int(bad[0])
+        raise StructureError(f"symmetry operator {triplets[k]!r} is not a symmetry operation (its determinant is "
+                             f"{det[k]:g}, not ±1): the operator list is corrupted")
+    # (R1, t1)(R2, t2) = (R1 R2, R1 t2 + t1): every product must be in the list, translations taken modulo 1
+    prod_r = np.einsum("aij,bjk->abik", rot, rot).reshape(-1, 9)
+    prod_t = (np.einsum("aij,bj->abi", rot, tran) + tran[:, None, :]).reshape(-1, 3)
+    key_r = rot.reshape(-1, 9)
+    t_mod = np.mod(tran, 1.0)
+    same_r = np.all(np.abs(prod_r[:, None, :] - key_r[None, :, :]) < 1e-6, axis=2)
+    dt = np.mod(prod_t[:, None, :] - t_mod[None, :, :] + 0.5, 1.0) - 0.5
+    found = np.any(same_r & np.all(np.abs(dt) < 1e-4, axis=2), axis=1)
+    if not found.all():
+        a, b = divmod(int(np.flatnonzero(~found)[0]), len(ops))
+        raise StructureError(f"the {len(ops)} symmetry operators do not form a group: {triplets[a]!r} followed by "
+                             f"{triplets[b]!r} gives an operation that is not in the list; the operator list is "
+                             "incomplete or corrupted")
+
+
+def _compare_with_symbol(ops, stated) -> None:
+    """Warn when the listed operators describe another group than the stated symbol."""
+    import gemmi
+
+    try:
+        found = gemmi.find_spacegroup_by_ops(gemmi.GroupOps(ops))
+    except (RuntimeError, ValueError):
+        found = None
+    name = stated.hm.replace(" ", "")
+    n_stated = len(list(stated.operations()))
+    if found is not None and found.number != stated.number:
+        _warn(f"the symmetry operators describe {found.hm.replace(' ', '')} (No. {found.number}) but the file states "
+              f"{name} (No. {stated.number}); the operators were used", "symmetry_mismatch")
+    elif found is None and len(ops) != n_stated:
+        _warn(f"the file lists {len(ops)} symmetry operators but states {name} (No. {stated.number}), which has "
+              f"{n_stated} in its conventional cell; the operators were used", "symmetry_mismatch")
 
 
 def _column(blk, tag: str):
@@ -300,7 +439,7 @@ def _expand(frac, species, labels, ops, lattice, max_atoms=None):
     from scipy.sparse.csgraph import connected_components
     from scipy.spatial import cKDTree
 
-    from screener.errors import ScreenerWarning
+    from screener.errors import StructureWarning
 
     rot = np.array([r for r, _ in ops])
     tran = np.array([t for _, t in ops])
@@ -356,9 +495,15 @@ def _expand(frac, species, labels, ops, lattice, max_atoms=None):
     if len(cross):
         d = frac_distance_A(images[cross], images[rep[cross]], lattice)
         far = cross[d > 0.01]
-        for a, b in sorted({(int(site_rep[m]), int(site_of[m])) for m in far})[:5]:
-            warnings.warn(f"sites {labels[a]} and {labels[b]} ({species[b]}) are closer than {MERGE_TOL_A} Å after "
-                          "symmetry expansion and were merged into one atom", ScreenerWarning, stacklevel=2)
+        closest: dict[tuple[int, int], float] = {}
+        for m, dist in zip(far, d[d > 0.01], strict=True):
+            key = (int(site_rep[m]), int(site_of[m]))
+            closest[key] = min(closest.get(key, np.inf), float(dist))
+        for (a, b), dist in sorted(closest.items())[:5]:
+            warnings.warn(StructureWarning(
+                f"sites {labels[a]} and {labels[b]} ({species[b]}) are {dist:.3f} Å apart after symmetry expansion, "
+                f"closer than {MERGE_TOL_A} Å, and were merged into one atom", "merged_sites",
+                labels=[labels[a], labels[b]], distance_A=dist), stacklevel=2)
     out_f = images[keep]
     kept_site = site_of[keep]
     counts = np.bincount(kept_site, minlength=n_sites)
