@@ -39,7 +39,7 @@ def format_rank_text(result: RankResult, source: str = "") -> str:
                 "delta_E_band_meV_per_atom", "delta_E_elastic_meV_per_atom", "delta_E_range_meV_per_atom", "gap_eV",
                 "shell_distances_A", "verdict", "kmesh"]
         show = table[cols].rename(columns={
-            "displacement_A": "u_max (Å)", "delta_E_meV_per_atom": "ΔE (meV/at)",
+            "displacement_A": "λ (Å)", "delta_E_meV_per_atom": "ΔE (meV/at)",
             "delta_E_band_meV_per_atom": "band", "delta_E_elastic_meV_per_atom": "elastic",
             "gap_eV": "gap (eV)", "shell_distances_A": "nn bonds (Å)", "space_group": "product",
             "delta_E_range_meV_per_atom": "ΔE range",
