@@ -207,6 +207,8 @@ def cmd_bands(args) -> int:
     from screener.bz.bands import band_structure
     from screener.show.figures import plot_band_structure
 
+    if args.plot:
+        _check_output_file(args.plot, "--plot")
     crystal = _read(args)
     params = _parameters_for(crystal, args.params)
     bs = band_structure(crystal, params, kpoints=args.kpoints, symprec=args.symprec)
@@ -288,10 +290,8 @@ def cmd_rank(args) -> int:
     if args.csv:
         _check_output_file(args.csv, "--csv")
     if args.write_structures:
-        from pathlib import Path
 
-        if Path(args.write_structures).exists() and not Path(args.write_structures).is_dir():
-            raise ScreenerError(f"--write-structures {args.write_structures} is a file; give a folder for the CIFs")
+        _check_output_folder(args.write_structures, "--write-structures", "the CIFs")
     crystal = _read(args)
     params = _parameters_for(crystal, args.params)
     q_extra = [_parse_q(q) for q in (args.q or [])]
@@ -367,6 +367,7 @@ def _write_atomically(path, text: str) -> None:
 
 
 def _check_output_file(path, option: str) -> None:
+    """Before any work: ``path`` can be written as a file (not a folder; its folder exists and takes files)."""
     from pathlib import Path
 
     p = Path(path)
@@ -374,6 +375,33 @@ def _check_output_file(path, option: str) -> None:
         raise ScreenerError(f"{option} {p} is a folder; give a file name")
     if not p.parent.exists():
         raise ScreenerError(f"{option} {p}: the folder {p.parent} does not exist")
+    _check_writable(p.parent, option, p)
+
+
+def _check_output_folder(path, option: str, what: str = "the output") -> None:
+    """Before any work: ``path`` is a folder or can be made one (not a file; its nearest existing folder takes
+    files)."""
+    from pathlib import Path
+
+    p = Path(path)
+    if p.exists() and not p.is_dir():
+        raise ScreenerError(f"{option} {p} is a file; give a folder for {what}")
+    base = p
+    while not base.exists():
+        base = base.parent
+    if not base.is_dir():
+        raise ScreenerError(f"{option} {p}: {base} is a file, so the folder cannot be made")
+    _check_writable(base, option, p)
+
+
+def _check_writable(folder, option: str, target) -> None:
+    import tempfile
+
+    try:
+        with tempfile.TemporaryDirectory(prefix=".screener-check-", dir=folder):
+            pass
+    except OSError as exc:
+        raise ScreenerError(f"{option} {target}: cannot write in {folder} ({exc.strerror or exc})") from None
 
 
 # ---------------------------------------------------------------------------------------------- demo
@@ -381,6 +409,7 @@ def cmd_demo(args) -> int:
     """Rank every bundled (invented) demo structure and write a report folder."""
     from screener.show.report import run_demo
 
+    _check_output_folder(args.out, "--out", "the report")
     run_demo(args.out, progress=not args.quiet)
     return 0
 
@@ -490,8 +519,8 @@ def cmd_explain(args) -> int:
     from screener.screen.explain import bond_curves, explain
     from screener.structure.formats import read_structure
 
-    if args.plot and Path(args.plot).exists() and not Path(args.plot).is_dir():
-        raise ScreenerError(f"--plot {args.plot} is a file; give a folder for the figures")
+    if args.plot:
+        _check_output_folder(args.plot, "--plot", "the figures")
     crystal = _read(args)
     parent = read_structure(args.parent) if args.parent else None
     params = _parameters_for(crystal, args.params)
@@ -537,11 +566,27 @@ def cmd_explain(args) -> int:
     return 0
 
 
+class Terminated(KeyboardInterrupt):
+    """SIGTERM received: stop as on Ctrl-C (work in flight is abandoned cleanly), exit 143 (128 + 15)."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
 def main(argv=None) -> int:
+    import signal
     import warnings
 
-    parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:
+        pass  # not the main thread (e.g. called from a library's worker thread): keep the default
+    try:
+        parser = build_parser()  # imports the generator registry, i.e. the numerical stack
+        args = parser.parse_args(argv)
+    except KeyboardInterrupt as exc:
+        return _interrupted(exc)
 
     def one_line_warning(message, category, filename, lineno, file=None, line=None):
         print(f"screener {args.command}: warning: {message}", file=sys.stderr)
@@ -564,15 +609,30 @@ def main(argv=None) -> int:
         print(f"screener {args.command}: error: out of memory: the input needs larger arrays than this machine "
               "holds; use a smaller cell or a coarser --k-step", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
-        print("screener: interrupted", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        return _interrupted(exc)
     except BrokenPipeError:
         # output piped into e.g. `head`, which stopped reading: not an error of ours
         import os
 
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
+    except OSError as exc:
+        # a file system refusal the up-front checks could not foresee (disk full, permissions changed meanwhile)
+        if args.debug:
+            raise
+        where = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        print(f"screener {args.command}: error: cannot read or write{where}: {exc.strerror or exc}", file=sys.stderr)
+        return 2
+
+
+def _interrupted(exc) -> int:
+    """One line, and the conventional exit status: 143 after SIGTERM, 130 after Ctrl-C (128 + signal number)."""
+    if isinstance(exc, Terminated):
+        print("screener: terminated", file=sys.stderr)
+        return 143
+    print("screener: interrupted", file=sys.stderr)
+    return 130
 
 
 # ---------------------------------------------------------------------------------------------- modes

@@ -46,3 +46,23 @@ def test_non_finite_option_values_are_refused_at_parse_time(value, capsys):
         main(["rank", str(demo), f"--k-step={value}"])
     assert info.value.code == 2
     assert "not a finite number" in capsys.readouterr().err
+
+
+def test_unwritable_or_impossible_output_places_are_refused_before_any_work(tmp_path, capsys):
+    # common practice, no source: an output that cannot be written is refused at once, not after the computation
+    missing = str(tmp_path / "not_read.cif")
+    a_file = tmp_path / "a_file.txt"
+    a_file.write_text("x")
+    # /proc takes no new folders, for any user (the Linux proc file system); elsewhere: a folder under a file
+    impossible = "/proc/screener-report" if __import__("os").path.isdir("/proc/self") else str(a_file / "sub")
+    assert main(["demo", "--out", impossible]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--out" in err[0]
+    assert main(["demo", "--out", str(a_file / "sub")]) == 2
+    assert "cannot be made" in capsys.readouterr().err
+    assert main(["bands", missing, "--plot", str(tmp_path)]) == 2
+    assert "--plot" in capsys.readouterr().err
+    assert main(["explain", missing, "--plot", str(a_file)]) == 2
+    assert "--plot" in capsys.readouterr().err
+    assert main(["rank", missing, "--write-structures", str(a_file / "sub")]) == 2
+    assert "--write-structures" in capsys.readouterr().err
