@@ -50,10 +50,29 @@ class ScreenSettings:
     """Symmetry tolerance, Å."""
 
     def __post_init__(self):
-        for name in ("k_step_per_A", "convergence_meV_per_atom", "max_amplitude_fraction", "threshold_meV_per_atom"):
+        import math
+        from dataclasses import fields
+
+        for f in fields(self):
+            v = getattr(self, f.name)
+            if isinstance(v, bool) or not isinstance(v, (int, float)):
+                if f.name in ("method", "closure") or (f.name == "bulk_modulus_GPa" and v is None):
+                    continue
+                raise ParameterError(f"{f.name} must be a number, got {v!r}")
+            if not math.isfinite(v):
+                raise ParameterError(f"{f.name} must be a finite number, got {v!r}")
+        for name in ("k_step_per_A", "convergence_meV_per_atom", "max_amplitude_fraction", "threshold_meV_per_atom",
+                     "width_eV", "pair_exponent", "symprec_A", "max_kpoints"):
             v = getattr(self, name)
-            if not (isinstance(v, (int, float)) and v > 0):
+            if not v > 0:
                 raise ParameterError(f"{name} must be a positive number, got {v!r}")
+        if self.bulk_modulus_GPa is not None and not self.bulk_modulus_GPa > 0:
+            raise ParameterError(f"bulk_modulus_GPa must be a positive number of GPa, got {self.bulk_modulus_GPa!r}")
+        if self.stable_tolerance_meV_per_atom < 0 or self.max_refinements < 0:
+            raise ParameterError("stable_tolerance_meV_per_atom and max_refinements must not be negative")
+        if self.amplitude_limit_fraction < self.max_amplitude_fraction:
+            raise ParameterError(f"amplitude_limit_fraction ({self.amplitude_limit_fraction!r}) must not be below "
+                                 f"max_amplitude_fraction ({self.max_amplitude_fraction!r})")
         if self.closure not in CLOSURES:
             raise ParameterError(f"closure must be one of {', '.join(CLOSURES)}, got {self.closure!r}")
         if not 0 < self.refine_factor < 1:

@@ -79,11 +79,11 @@ def cmd_info(args) -> int:
 
     from screener.structure.elements import valence_electrons
     from screener.structure.formats.cif import cell_parameters
-    from screener.structure.symmetry import analyse, standard_cell
+    from screener.structure.symmetry import analyse
 
     crystal = _read(args)
     sym = analyse(crystal, symprec=args.symprec)
-    n_conventional = standard_cell(crystal, symprec=args.symprec).n_atoms
+    n_conventional = sym.conventional_atoms  # one symmetry search serves the group, the sites and this count
     a, b, c, alpha, beta, gamma = cell_parameters(crystal.lattice_A)
     orbit_size = {int(r): int(n) for r, n in zip(*np.unique(sym.equivalent_atoms, return_counts=True), strict=True)}
     # Wyckoff multiplicity counts the orbit in the conventional cell: the orbit's share of atoms is cell-independent

@@ -25,6 +25,10 @@ from screener.structure.neighbours import (
 MIN_DISTANCE_A = 0.5
 #: Smallest cell volume per atom accepted (Å^3); guards against degenerate cells.
 MIN_VOLUME_PER_ATOM_A3 = 0.5
+#: Longest lattice vector accepted (Å). Crystal cells, even supercells or slabs with vacuum, are far shorter;
+#: longer ones are unit errors or corrupted numbers, and beyond ~1e15 Å double precision cannot resolve the
+#: atoms' positions within the cell (common practice, no source).
+MAX_CELL_LENGTH_A = 1000.0
 
 
 def _readonly(a: np.ndarray) -> np.ndarray:
@@ -85,6 +89,12 @@ class Crystal:
             labels = tuple(str(x) for x in self.labels)
             if len(labels) != n:
                 raise StructureError(f"got {n} positions but {len(labels)} site labels")
+        lengths = np.linalg.norm(lat, axis=1)
+        if lengths.max() > MAX_CELL_LENGTH_A:
+            raise StructureError(
+                f"lattice vector of {lengths.max():.4g} Å, longer than {MAX_CELL_LENGTH_A:g} Å: not a crystal cell "
+                "this tool can handle (wrong units, or a corrupted number?)"
+            )
         volume = float(np.linalg.det(lat))
         # lattice vector lengths set the scale for "near-zero"
         scale = float(np.prod(np.linalg.norm(lat, axis=1)))

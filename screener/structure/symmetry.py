@@ -15,9 +15,18 @@ from screener.structure.elements import ATOMIC_NUMBER
 SYMPREC_A = 1e-3
 
 
-#: What to try when the symmetry search fails: it fails when atoms lie closer together than the tolerance.
-_TOLERANCE_HINT = ("atoms closer together than the tolerance make the search fail, so try a smaller --symprec "
-                   "(or a larger one for a slightly distorted structure)")
+def _failure_hint(crystal: Crystal, symprec: float) -> str:
+    """Why the symmetry search may have failed and what to try, from the shortest contact and the tolerance."""
+    d = crystal._shortest_contact()[0]
+    if d < 4 * symprec:
+        what = (f"its shortest contact, {d:.3g} Å, is within a few tolerances: try a smaller --symprec, e.g. "
+                f"{d / 10:.2g}")
+    elif symprec < 0.1:
+        what = "for a slightly distorted or rounded structure a larger --symprec (up to 0.1 Å) may help"
+    else:
+        what = ("the tolerance is already large (≥ 0.1 Å); a larger one would merge distinct atoms, so check the "
+                "structure instead")
+    return f"; {what}"
 
 
 def _cell(crystal: Crystal):
@@ -28,11 +37,17 @@ def dataset(crystal: Crystal, symprec: float = SYMPREC_A):
     """spglib's symmetry dataset of ``crystal``; SymmetryError if spglib finds none."""
     if not (symprec > 0):
         raise SymmetryError(f"symprec must be a positive length in Å, got {symprec!r}")
+    d = crystal._shortest_contact()[0]
+    if symprec >= 0.5 * d:
+        # atoms within the tolerance of each other cannot be told apart: the search fails or returns nonsense
+        raise SymmetryError(f"the symmetry tolerance {symprec:g} Å is not below half the shortest contact of "
+                            f"{crystal.formula} ({d:.3g} Å): distinct atoms would be confused; use a --symprec "
+                            f"well below {0.5 * d:.3g} Å (default {SYMPREC_A:g})")
     ds = spglib.get_symmetry_dataset(_cell(crystal), symprec=symprec)
     if ds is None:
         raise SymmetryError(
-            f"the symmetry search found no space group for {crystal.formula} at a tolerance of {symprec:g} Å; "
-            f"{_TOLERANCE_HINT}"
+            f"the symmetry search found no space group for {crystal.formula} at a tolerance of {symprec:g} Å"
+            f"{_failure_hint(crystal, symprec)}"
         )
     return ds
 
@@ -63,6 +78,8 @@ class SymmetryInfo:
     """(3,) float, spglib's p: standard fractional coordinates x_s = P x + p."""
     mapping_to_primitive: np.ndarray = None
     """(n,) int, index of the primitive-cell atom each input atom is a copy of."""
+    conventional_atoms: int = 0
+    """Number of atoms in the standard conventional cell (from the same search)."""
 
 
 def analyse(crystal: Crystal, symprec: float = SYMPREC_A) -> SymmetryInfo:
@@ -82,6 +99,7 @@ def analyse(crystal: Crystal, symprec: float = SYMPREC_A) -> SymmetryInfo:
         transformation_matrix=np.asarray(ds.transformation_matrix, dtype=float),
         origin_shift=np.asarray(ds.origin_shift, dtype=float),
         mapping_to_primitive=np.asarray(ds.mapping_to_primitive, dtype=int),
+        conventional_atoms=int(len(ds.std_types)),
     )
 
 
@@ -190,7 +208,7 @@ def primitive_cell(crystal: Crystal, symprec: float = SYMPREC_A) -> Crystal:
     cell = spglib.standardize_cell(_cell(crystal), to_primitive=True, no_idealize=False, symprec=symprec)
     if cell is None:
         raise SymmetryError(f"the symmetry search found no primitive cell of {crystal.formula} at a tolerance of "
-                            f"{symprec:g} Å; {_TOLERANCE_HINT}")
+                            f"{symprec:g} Å{_failure_hint(crystal, symprec)}")
     return _from_spglib_cell(cell, crystal)
 
 
@@ -199,7 +217,7 @@ def standard_cell(crystal: Crystal, symprec: float = SYMPREC_A) -> Crystal:
     cell = spglib.standardize_cell(_cell(crystal), to_primitive=False, no_idealize=False, symprec=symprec)
     if cell is None:
         raise SymmetryError(f"the symmetry search could not put {crystal.formula} in its standard setting at a "
-                            f"tolerance of {symprec:g} Å; {_TOLERANCE_HINT}")
+                            f"tolerance of {symprec:g} Å{_failure_hint(crystal, symprec)}")
     return _from_spglib_cell(cell, crystal)
 
 

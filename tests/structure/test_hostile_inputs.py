@@ -116,3 +116,39 @@ def test_null_occupancy_means_unknown_and_reads_as_full(tmp_path, occ):
 def test_coordinates_far_outside_the_cell_are_an_error(tmp_path, x):
     with pytest.raises(StructureError, match="site Al1: fractional coordinate x"):
         read_structure(_write(tmp_path, "far.cif", AL + f"Al1 Al {x} 0 0\n"))
+
+
+def test_cell_vector_beyond_1000_A_is_an_error(tmp_path):
+    # 1e10-1e20 Å cells made the neighbour search explode or lose every bond to rounding; common practice, no source
+    for length in (1e4, 1e10, 1e20):
+        p = _write(tmp_path, "huge.json", json.dumps(
+            {"lattice_A": [[length, 0, 0], [0, length, 0], [0, 0, length]], "sites": [{"element": "As", "frac": [0, 0, 0]}]}))
+        with pytest.raises(StructureError, match="longer than 1000"):
+            read_structure(p)
+
+
+def test_json_position_far_outside_the_cell_is_an_error_not_wrapped(tmp_path):
+    # 1e6 would wrap to 0 and silently land on another atom
+    p = _write(tmp_path, "far.json", json.dumps({"lattice_A": [[4, 0, 0], [0, 4, 0], [0, 0, 4]], "sites": [
+        {"element": "As", "frac": [0, 0, 0]}, {"element": "As", "frac": [1e6, 0.5, 0.5]}]}))
+    with pytest.raises(StructureError, match="outside -10..10"):
+        read_structure(p)
+
+
+def test_single_atom_site_tag_beside_a_loop_is_named(tmp_path):
+    text = AL.replace("loop_\n_atom_site_label\n_atom_site_type_symbol", "_atom_site_type_symbol Al\nloop_\n_atom_site_label")
+    p = _write(tmp_path, "single.cif", text + "Al1 0 0 0\nAl2 0.5 0.5 0.5\n")
+    with pytest.raises(FormatError, match="_atom_site_type_symbol has 1 value"):
+        read_structure(p)
+
+
+def test_symmetry_tolerance_beyond_half_the_shortest_contact_is_refused():
+    # atoms within the tolerance of each other cannot be told apart (common practice, no source)
+    from screener.errors import SymmetryError
+    from screener.structure.crystal import Crystal
+    from screener.structure.symmetry import analyse
+
+    c = Crystal(np.eye(3) * 4, [[0, 0, 0], [0.5, 0.5, 0.5]], ["As", "As"])
+    assert analyse(c, 0.5).number == 229  # bcc, contact 3.46 Å
+    with pytest.raises(SymmetryError, match="half the shortest contact"):
+        analyse(c, 2.0)

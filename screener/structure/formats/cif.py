@@ -390,6 +390,11 @@ def _asymmetric_unit(blk):
     labels = _column(blk, "_atom_site_label")
     types = _column(blk, "_atom_site_type_symbol")
     occs = _column(blk, "_atom_site_occupancy")
+    for tag, col in (("_atom_site_fract_y", ys), ("_atom_site_fract_z", zs), ("_atom_site_label", labels),
+                     ("_atom_site_type_symbol", types), ("_atom_site_occupancy", occs)):
+        if col is not None and len(col) != n:
+            raise FormatError(f"data block {blk.name!r}: {tag} has {len(col)} value(s) but _atom_site_fract_x has "
+                              f"{n}; every atom-site tag belongs in the same loop, one value per site")
     if labels is None and types is None:
         raise FormatError(f"data block {blk.name!r}: atom sites have neither _atom_site_label nor _type_symbol")
     labels = [gemmi.cif.as_string(x) for x in labels] if labels else [None] * n

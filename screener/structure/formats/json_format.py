@@ -78,6 +78,9 @@ def from_dict(obj, *, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
             frac[k] = _array(site["cart_A"], f"{where}.cart_A", (3,)) @ inv
         else:
             raise FormatError(f"{where}: needs 'frac' (fractions of the lattice rows) or 'cart_A' (Å)")
+        if np.all(np.isfinite(frac[k])) and np.abs(frac[k]).max() > 10:
+            # far outside the cell: almost surely a corrupted number, and wrapping it would hide that
+            raise StructureError(f"{where}: fractional position {np.round(frac[k], 6).tolist()} is outside -10..10")
         labels.append(site.get("label"))
     use_labels = None if any(lab is None for lab in labels) else [str(x) for x in labels]
     return Crystal(lattice, frac, species, use_labels, min_distance_A=min_distance_A)
