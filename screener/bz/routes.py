@@ -10,6 +10,10 @@ from screener.errors import ParameterError, SymmetryError
 from screener.structure.crystal import Crystal
 from screener.structure.symmetry import CENTRING
 
+#: Largest |component| (fractions of reciprocal vectors) accepted for explicit k-points: every point has an
+#: equivalent within ±0.5, and beyond ~1e15 the Bloch phases lose all precision (common practice, no source).
+MAX_K_FRACTION = 10.0
+
 #
 # Special points and default paths follow W. Setyawan & S. Curtarolo, Comput. Mater. Sci. 49, 299 (2010)
 # (values written here from memory of the paper's tables; tests/bz/test_routes.py checks every one of them lies on
@@ -307,6 +311,9 @@ def parse_kpoints(text) -> tuple[list[str], np.ndarray]:
             raise ParameterError(f"k-points must be an (m, 3) array of numbers, got {text!r}") from None
         if arr.ndim != 2 or arr.shape[1] != 3 or len(arr) == 0 or not np.all(np.isfinite(arr)):
             raise ParameterError(f"k-points must be an (m, 3) array of finite numbers, got shape {arr.shape}")
+        if np.abs(arr).max() > MAX_K_FRACTION:
+            raise ParameterError(f"k-points must lie within ±{MAX_K_FRACTION:g} reciprocal vectors (an equivalent "
+                                 "point always lies within ±0.5)")
         return [",".join(f"{x:g}" for x in row) for row in arr], arr
     labels, rows = [], []
     parts = [p.strip() for p in text.split(";")]
@@ -323,6 +330,11 @@ def parse_kpoints(text) -> tuple[list[str], np.ndarray]:
             raise ParameterError(
                 f"--kpoints {text!r}: point {n} ({part!r}) is not three numbers 'x,y,z'; write points as "
                 "'x,y,z;x,y,z;...' in fractions of the reciprocal lattice vectors, e.g. '0,0,0;0.5,0,0'"
+            )
+        if max(abs(x) for x in row) > MAX_K_FRACTION:
+            raise ParameterError(
+                f"--kpoints {text!r}: point {n} ({part!r}) lies beyond ±{MAX_K_FRACTION:g} reciprocal vectors; every "
+                "k-point has an equivalent within the first zone (components between -0.5 and 0.5)"
             )
         labels.append(label.strip() or ",".join(fields))
         rows.append(row)

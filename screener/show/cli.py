@@ -624,6 +624,14 @@ def main(argv=None) -> int:
         where = f" {exc.filename}" if getattr(exc, "filename", None) else ""
         print(f"screener {args.command}: error: cannot read or write{where}: {exc.strerror or exc}", file=sys.stderr)
         return 2
+    except Exception as exc:  # noqa: BLE001 - the last net: a bug of ours must still end in one line
+        if args.debug:
+            raise
+        reason = str(exc).splitlines()[0][:200] if str(exc) else ""
+        print(f"screener {args.command}: internal error ({type(exc).__name__}{': ' + reason if reason else ''}) on "
+              f"{getattr(args, 'file', None) or 'this input'}; please report it with the input file (--debug shows "
+              "where it happened)", file=sys.stderr)
+        return 3
 
 
 def _interrupted(exc) -> int:
