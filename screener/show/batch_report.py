@@ -18,7 +18,21 @@ DESCRIPTORS = {
     "volume-per-atom": ("volume per atom (Å³)", lambda r: r.get("volume_per_atom_A3")),
     "electrons-per-atom": ("valence electrons per atom",
                            lambda r: r["valence_electrons_per_cell"] / r["n_atoms"] if r.get("n_atoms") else None),
+    "electronegativity-difference": ("mean electronegativity difference |Δχ| (Pauling units)",
+                                     lambda r: _delta_chi(r.get("formula"))),
 }
+
+
+def _delta_chi(formula):
+    from screener.errors import ScreenerError
+    from screener.structure.elements import mean_electronegativity_difference, parse_formula
+
+    if not formula:
+        return None
+    try:
+        return mean_electronegativity_difference(parse_formula(formula))
+    except ScreenerError:
+        return None
 #: Colour per verdict (Okabe & Ito 2008 colour-blind-safe set).
 VERDICT_COLOURS = {"unstable": "#D55E00", "marginal": "#E69F00", "stable": "#0072B2"}
 

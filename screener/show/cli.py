@@ -322,6 +322,10 @@ def cmd_batch(args) -> int:
 
     if args.csv:
         _check_output_file(args.csv, "--csv")
+    if args.export:
+        _check_export(args.export)
+    if args.report:
+        _check_output_folder(args.report, "--report", "the report")
     if args.params:
         from pathlib import Path
 
@@ -339,6 +343,9 @@ def cmd_batch(args) -> int:
     if args.csv:
         _write_atomically(args.csv, load_store(args.store).to_csv(index=False))
         print(f"wrote {args.csv}")
+    if args.export:
+        _export(load_store(args.store), args.export)
+        print(f"wrote {args.export}")
     if args.report:
         from screener.show.batch_report import write_batch_report
 
@@ -347,6 +354,39 @@ def cmd_batch(args) -> int:
         print("screener batch: stopped before the end; run the same command again to finish", file=sys.stderr)
         return 130
     return 0
+
+
+def _check_export(path) -> None:
+    """Before the batch: the export's format is known, its writer available, its place writable."""
+    suffix = Path(path).suffix.lower()
+    if suffix not in (".csv", ".parquet"):
+        raise ScreenerError(f"--export {path}: the name must end in .csv or .parquet")
+    if suffix == ".parquet":
+        import importlib.util
+
+        if importlib.util.find_spec("pyarrow") is None:
+            raise ScreenerError(f"--export {path}: writing .parquet needs the optional pyarrow package "
+                                "(pip install pyarrow); or export to .csv")
+    _check_output_file(path, "--export")
+
+
+def _export(table, path) -> None:
+    """Write the store's table as CSV or Parquet, atomically (temporary file, then rename)."""
+    import os
+    import tempfile
+
+    p = Path(path)
+    if p.suffix.lower() == ".csv":
+        _write_atomically(p, table.to_csv(index=False))
+        return
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}-", dir=p.resolve().parent)
+    os.close(fd)
+    try:
+        table.to_parquet(tmp, index=False)
+        os.replace(tmp, p)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
 
 
 def _write_atomically(path, text: str) -> None:
@@ -477,11 +517,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--store", default="results.sqlite", help="result store (SQLite file, default results.sqlite)")
     p.add_argument("--workers", type=int, help="local worker processes (default: the number of cores)")
     p.add_argument("--dask", metavar="ADDRESS", help="send the work to this Dask scheduler (screener[cluster] extra)")
-    p.add_argument("--csv", help="write one row per stored structure to this CSV file")
+    p.add_argument("--csv", help="write one row per stored structure to this CSV file (same as --export FILE.csv)")
     p.add_argument("--report", metavar="DIR", help="write a report folder: counts, ΔE histogram, most unstable, "
                                                    "ΔE against a descriptor")
-    p.add_argument("--descriptor", choices=["volume-per-atom", "electrons-per-atom"], default="volume-per-atom",
-                   help="descriptor of the report's ΔE plot (default volume-per-atom)")
+    p.add_argument("--export", metavar="FILE",
+                   help="write one row per stored structure (headline verdict, top candidate, ΔE and its range) to "
+                        "FILE: .csv, or .parquet when the pyarrow package is installed")
+    p.add_argument("--descriptor", choices=["volume-per-atom", "electrons-per-atom", "electronegativity-difference"],
+                   default="volume-per-atom", help="descriptor of the report's ΔE plot (default volume-per-atom)")
     p.add_argument("--symprec", type=_finite_float, default=1e-3, help="symmetry tolerance in Å (default 1e-3)")
     _add_rank_options(p)
     p.set_defaults(func=cmd_batch)

@@ -47,6 +47,53 @@ Fr 2.60 Ra 2.21 Ac 2.15 Th 2.06 Pa 2.00 U 1.96 Np 1.90 Pu 1.87 Am 1.80 Cm 1.69
 """.split()
 COVALENT_RADIUS_A: dict[str, float] = {_COVALENT[k]: float(_COVALENT[k + 1]) for k in range(0, len(_COVALENT), 2)}
 
+#: Pauling electronegativities (the revised values of A. L. Allred, J. Inorg. Nucl. Chem. 17, 215 (1961), as
+#: tabulated in the handbooks; from memory). Used only as a descriptor for plots of many results.
+_PAULING = """
+H 2.20 Li 0.98 Be 1.57 B 2.04 C 2.55 N 3.04 O 3.44 F 3.98 Na 0.93 Mg 1.31 Al 1.61 Si 1.90 P 2.19 S 2.58 Cl 3.16
+K 0.82 Ca 1.00 Sc 1.36 Ti 1.54 V 1.63 Cr 1.66 Mn 1.55 Fe 1.83 Co 1.88 Ni 1.91 Cu 1.90 Zn 1.65 Ga 1.81 Ge 2.01
+As 2.18 Se 2.55 Br 2.96 Kr 3.00 Rb 0.82 Sr 0.95 Y 1.22 Zr 1.33 Nb 1.60 Mo 2.16 Tc 1.90 Ru 2.20 Rh 2.28 Pd 2.20
+Ag 1.93 Cd 1.69 In 1.78 Sn 1.96 Sb 2.05 Te 2.10 I 2.66 Xe 2.60 Cs 0.79 Ba 0.89 La 1.10 Ce 1.12 Pr 1.13 Nd 1.14
+Sm 1.17 Gd 1.20 Dy 1.22 Ho 1.23 Er 1.24 Tm 1.25 Lu 1.27 Hf 1.30 Ta 1.50 W 2.36 Re 1.90 Os 2.20 Ir 2.20 Pt 2.28
+Au 2.54 Hg 2.00 Tl 1.62 Pb 2.33 Bi 2.02 Po 2.00 At 2.20 Fr 0.70 Ra 0.90 Ac 1.10 Th 1.30 Pa 1.50 U 1.38 Np 1.36
+Pu 1.28
+""".split()
+PAULING_ELECTRONEGATIVITY: dict[str, float] = {_PAULING[k]: float(_PAULING[k + 1]) for k in range(0, len(_PAULING), 2)}
+
+
+def mean_electronegativity_difference(composition: dict[str, float]) -> float | None:
+    """Mean |χ_A − χ_B| (Pauling) over unlike pairs of atoms drawn from ``composition`` (element -> amount).
+
+    For a binary this is |χ_A − χ_B| whatever the stoichiometry; an element gives 0. None when an element has no
+    tabulated value.
+    """
+    els = [e for e, n in composition.items() if n > 0]
+    if any(e not in PAULING_ELECTRONEGATIVITY for e in els):
+        return None
+    total = sum(composition[e] for e in els)
+    x = {e: composition[e] / total for e in els}
+    num = den = 0.0
+    for a_i, a in enumerate(els):
+        for b in els[a_i + 1:]:
+            w = x[a] * x[b]
+            num += w * abs(PAULING_ELECTRONEGATIVITY[a] - PAULING_ELECTRONEGATIVITY[b])
+            den += w
+    return num / den if den else 0.0
+
+
+def parse_formula(formula: str) -> dict[str, float]:
+    """{'Ge': 1, 'Te': 1} from 'GeTe'; amounts may be decimals ('Bi0.5Sb0.5'). StructureError if unreadable."""
+    import re
+
+    parts = re.findall(r"([A-Z][a-z]?)(\d*\.?\d*)", formula)
+    if not parts or "".join(a + b for a, b in parts) != formula.replace(" ", ""):
+        raise StructureError(f"cannot read the chemical formula {formula!r}")
+    out: dict[str, float] = {}
+    for el, n in parts:
+        out[normalise_symbol(el)] = out.get(el, 0.0) + (float(n) if n else 1.0)
+    return out
+
+
 #: Toxic elements that often appear in Peierls candidates (common laboratory hazard knowledge, no source).
 TOXIC = frozenset("Be As Se Sb Cd Hg Tl Pb Te".split())
 #: Radioactive elements: no stable isotope (common knowledge of the chart of nuclides, no source).
