@@ -346,6 +346,137 @@ def survey(parent, max_denominator: int = 4, *, method: str = "fermi-dirac", wid
                        fermi_level_eV=st.fermi_level_eV, n_electrons=st.n_electrons)
 
 
-def strain_stiffness(*args, **kwargs):
-    """Elastic constants from homogeneous strain at q = 0."""
-    raise NotImplementedError("homogeneous strain (elastic constants of the model) is not implemented yet")
+#: eV/Å³ in GPa (1 eV = 1.602176634e-19 J exactly, SI 2019; 1 Å³ = 1e-30 m³).
+EV_PER_A3_IN_GPA = 160.21766208
+#: Voigt index -> Cartesian pair (xx, yy, zz, yz, xz, xy).
+_VOIGT = ((0, 0), (1, 1), (2, 2), (1, 2), (0, 2), (0, 1))
+
+
+@dataclass(frozen=True, eq=False)
+class StrainStiffness:
+    """Clamped-ion elastic constants of the parent from its model: C_ij = (1/V) ∂²E/∂ε_i∂ε_j (Voigt notation)."""
+
+    elastic_constants_GPa: np.ndarray
+    """(6, 6) symmetric C_ij, GPa, Voigt order xx, yy, zz, yz, xz, xy (engineering shear strains)."""
+    eigenvalues_GPa: np.ndarray
+    """(6,) eigenvalues of C, ascending, GPa: a negative one is a homogeneous-strain (e.g. shear) instability."""
+    strain_patterns: np.ndarray
+    """(6, 6) eigenvectors of C as columns (Voigt strain vectors, unit norm)."""
+    bulk_modulus_GPa: float
+    """Voigt bulk modulus (C11 + C22 + C33 + 2 (C12 + C13 + C23)) / 9, GPa."""
+    kmesh: tuple[int, int, int]
+    """k-mesh of the parent cell the energies were summed on."""
+    step: float
+    """Strain step of the finite differences."""
+
+    @property
+    def unstable(self) -> list[tuple[float, np.ndarray]]:
+        """(eigenvalue GPa, (6, d) basis) per degenerate group of negative eigenvalues, most negative first."""
+        vals, vecs = self.eigenvalues_GPa, self.strain_patterns
+        tol = 1e-3 * max(1.0, float(np.abs(vals).max()))
+        groups, a = [], 0
+        while a < 6 and vals[a] < -tol:
+            b = a + 1
+            while b < 6 and abs(vals[b] - vals[a]) < tol:
+                b += 1
+            groups.append((float(vals[a:b].mean()), vecs[:, a:b]))
+            a = b
+        return groups
+
+
+def strain_matrix(voigt) -> np.ndarray:
+    """Symmetric strain tensor from a Voigt vector (engineering shears: ε4 = 2 ε_yz, …)."""
+    e = np.zeros((3, 3))
+    for a, (i, j) in enumerate(_VOIGT):
+        e[i, j] = e[j, i] = voigt[a] if i == j else 0.5 * voigt[a]
+    return e
+
+
+def strain_stiffness(parent, *, step: float = 0.005, mesh=None) -> StrainStiffness:
+    """The parent's 6 × 6 elastic constants from its model (band energy + the closure in use), clamped ions.
+
+    Every atom keeps its fractional position (no internal relaxation: exact for cells whose atoms all sit on
+    inversion centres, an upper bound of the shear constants otherwise, e.g. diamond's C44). The cell is strained
+    as r → r (1 + ε); the bonds follow the atoms. Second derivatives by central differences with strain ``step``
+    on the parent's k-mesh (the one its closure was fitted on); the mesh of each strained cell is reduced with the
+    parent's rotations that keep the strained metric.
+    """
+    from screener.bz.integrate import solve_on_mesh
+    from screener.bz.kmesh import mesh_from_spacing
+    from screener.screen.closure import elastic_model_for
+    from screener.tb.model import build_model
+
+    crystal, settings, bonds = parent.crystal, parent.settings, parent.bonds
+    if not all(parent.model.periodic):
+        raise ParameterError("elastic constants need a crystal periodic in three directions (this cell has vacuum)")
+    en = parent.energetics
+    el = elastic_model_for(crystal, parent.params, bonds, en.repulsion_eV, en.pair_exponent)
+    if mesh is None:
+        mesh = mesh_from_spacing(crystal, settings.k_step_per_A * settings.refine_factor, parent.model.periodic)
+    rots = np.asarray(parent.symmetry.rotations)
+    cache: dict[tuple, float] = {}
+
+    def energy(voigt) -> float:
+        key = tuple(np.round(voigt, 12))
+        if key not in cache:
+            lat = crystal.lattice_A @ (np.eye(3) + strain_matrix(voigt))
+            metric = lat @ lat.T
+            keep = np.array([np.allclose(r.T @ metric @ r, metric, atol=1e-9 * np.abs(metric).max())
+                             for r in np.transpose(rots, (0, 2, 1))])
+            model = build_model(crystal.replace(lattice_A=lat), parent.params, bonds=bonds)
+            band = solve_on_mesh(model, mesh, method=settings.method, width_eV=settings.width_eV,
+                                 symprec=settings.symprec_A, rotations=rots[keep]).band_energy_eV
+            cache[key] = band + el.energy_eV(lat, crystal.frac)
+        return cache[key]
+
+    h = float(step)
+    e0 = energy(np.zeros(6))
+    c = np.zeros((6, 6))
+    unit = np.eye(6)
+    for a in range(6):
+        c[a, a] = (energy(h * unit[a]) - 2 * e0 + energy(-h * unit[a])) / h**2
+        for b in range(a):
+            c[a, b] = c[b, a] = (energy(h * (unit[a] + unit[b])) - energy(h * (unit[a] - unit[b]))
+                                 - energy(h * (unit[b] - unit[a])) + energy(-h * (unit[a] + unit[b]))) / (4 * h * h)
+    c_gpa = c / crystal.volume_A3 * EV_PER_A3_IN_GPA
+    vals, vecs = np.linalg.eigh(c_gpa)
+    bulk = (c_gpa[0, 0] + c_gpa[1, 1] + c_gpa[2, 2] + 2 * (c_gpa[0, 1] + c_gpa[0, 2] + c_gpa[1, 2])) / 9
+    return StrainStiffness(elastic_constants_GPa=c_gpa, eigenvalues_GPa=vals, strain_patterns=vecs,
+                           bulk_modulus_GPa=float(bulk), kmesh=tuple(int(x) for x in mesh), step=h)
+
+
+def describe_strain(group) -> str:
+    """A degenerate group (eigenvalue, (6, d) basis) of strain patterns in words: which strains it combines."""
+    names = ("ε_xx", "ε_yy", "ε_zz", "γ_yz", "γ_xz", "γ_xy")
+    value, basis = group
+    basis = np.asarray(basis, dtype=float).reshape(6, -1)
+    weight = np.sum(basis**2, axis=1)
+    parts = [n for n, w in zip(names, weight, strict=True) if w > 0.05]
+    d = basis.shape[1]
+    if d == 1:
+        v = basis[:, 0] / np.abs(basis[:, 0]).max()
+        text = " ".join(f"{x:+.2f} {n}" for x, n in zip(v, names, strict=True) if abs(x) > 0.05)
+    else:
+        text = f"any combination of {', '.join(parts)}" + (" with zero trace (volume kept)"
+                                                          if set(parts) <= set(names[:3]) and d == 2 else "")
+    return f"{value:.1f} GPa" + (f" (×{d})" if d > 1 else "") + f": {text}"
+
+
+def cubic_summary(strain: StrainStiffness) -> str | None:
+    """For a cubic C: C11 − C12, C44 and C11 + 2 C12 with the Born stability conditions (all three positive;
+    M. Born & K. Huang, Dynamical Theory of Crystal Lattices, 1954). None when C is not of cubic form."""
+    c = strain.elastic_constants_GPa
+    scale = max(1.0, float(np.abs(c).max()))
+    cubic = (np.allclose(np.diag(c)[:3], c[0, 0], atol=1e-3 * scale)
+             and np.allclose(np.diag(c)[3:], c[3, 3], atol=1e-3 * scale)
+             and np.allclose([c[0, 1], c[0, 2], c[1, 2]], c[0, 1], atol=1e-3 * scale)
+             and np.allclose(c[:3, 3:], 0, atol=1e-3 * scale) and np.allclose(c[3:, 3:] - np.diag(np.diag(c)[3:]), 0,
+                                                                                atol=1e-3 * scale))
+    if not cubic:
+        return None
+    c11, c12, c44 = c[0, 0], c[0, 1], c[3, 3]
+    bad = [name for name, v in (("tetragonal shear C11 − C12", c11 - c12), ("trigonal shear C44", c44),
+                                ("compression C11 + 2 C12", c11 + 2 * c12)) if v <= 0]
+    verdict = "mechanically stable" if not bad else "unstable to " + " and ".join(bad)
+    return (f"cubic: C11 = {c11:.1f}, C12 = {c12:.1f}, C44 = {c44:.1f} GPa; C11 − C12 = {c11 - c12:.1f}, "
+            f"C11 + 2 C12 = {c11 + 2 * c12:.1f} GPa → {verdict} (Born conditions)")

@@ -691,10 +691,12 @@ def cmd_modes(args) -> int:
     """Stiffness of the parent over a q grid. ``--json`` prints ``q_points`` [{``q_frac``,
     ``stiffness_eV_per_A2`` (ascending), ``patterns`` (in words), ``chi0`` {``with_overlaps``,
     ``without_overlaps``} (states/eV per cell)}], ``soft`` (negative stiffnesses, most negative first), ``searched``
-    (the q list), ``kmesh``, ``fermi_level_eV``, ``electrons_per_cell``."""
+    (the q list), ``kmesh``, ``fermi_level_eV``, ``electrons_per_cell`` and, for 3-D periodic cells at the default
+    filling, ``strain`` {``elastic_constants_GPa`` (6 × 6, Voigt), ``eigenvalues_GPa``, ``bulk_modulus_GPa``,
+    ``instabilities`` (in words), ``kmesh``}."""
     import numpy as np
 
-    from screener.screen.modes import describe_pattern, survey
+    from screener.screen.modes import cubic_summary, describe_pattern, describe_strain, strain_stiffness, survey
     from screener.screen.parent import build_parent
     from screener.screen.settings import ScreenSettings
 
@@ -715,6 +717,17 @@ def cmd_modes(args) -> int:
     soft.sort(key=lambda x: x["stiffness_eV_per_A2"])
     out = {"file": str(args.file), "q_points": points, "soft": soft, "searched": [list(q) for q in res.searched],
            "kmesh": list(res.kmesh), "fermi_level_eV": res.fermi_level_eV, "electrons_per_cell": res.n_electrons}
+    strain = None
+    if all(parent.model.periodic) and args.electrons is None:
+        strain = strain_stiffness(parent)
+        out["strain"] = {
+            "elastic_constants_GPa": strain.elastic_constants_GPa.tolist(),
+            "eigenvalues_GPa": strain.eigenvalues_GPa.tolist(),
+            "bulk_modulus_GPa": strain.bulk_modulus_GPa,
+            "instabilities": [describe_strain(u) for u in strain.unstable],
+            "cubic": cubic_summary(strain),
+            "kmesh": list(strain.kmesh),
+        }
     if args.plot:
         from screener.show.figures import plot_modes
 
@@ -740,6 +753,21 @@ def cmd_modes(args) -> int:
     chis = sorted(points, key=lambda x: -x["chi0"]["with_overlaps"])[:3]
     lines.append("χ0 maxima: " + "; ".join(f"{c['chi0']['with_overlaps']:.3f} at "
                                            f"({', '.join(f'{x:.3g}' for x in c['q_frac'])})" for c in chis))
+    if strain is not None:
+        c = strain.elastic_constants_GPa
+        lines += ["", "homogeneous strain: clamped-ion elastic constants of the model (GPa, Voigt xx yy zz yz xz xy)"]
+        lines += ["  " + " ".join(f"{x:8.1f}" for x in row) for row in c]
+        lines.append(f"  eigenvalues {' '.join(f'{x:.1f}' for x in strain.eigenvalues_GPa)} GPa; Voigt bulk modulus "
+                     f"{strain.bulk_modulus_GPa:.1f} GPa")
+        if cubic_summary(strain):
+            lines.append("  " + cubic_summary(strain))
+        if strain.unstable:
+            lines += [f"  unstable strain: {describe_strain(u)}" for u in strain.unstable]
+        else:
+            lines.append("  no strain instability")
+    elif args.electrons is not None:
+        lines.append("homogeneous strain: not computed with --electrons (the elastic closure belongs to the default "
+                     "filling)")
     print("\n".join(lines))
     return 0
 

@@ -33,16 +33,20 @@ def _cell(crystal: Crystal):
     return (crystal.lattice_A, crystal.frac, [ATOMIC_NUMBER[s] for s in crystal.species])
 
 
+def _check_tolerance(crystal: Crystal, symprec: float) -> None:
+    """Atoms within the tolerance of each other cannot be told apart: the search would fail or return nonsense."""
+    d = crystal._shortest_contact()[0]
+    if symprec >= 0.5 * d:
+        raise SymmetryError(f"the symmetry tolerance {symprec:g} Å is not below half the shortest contact of "
+                            f"{crystal.formula} ({d:.3g} Å): distinct atoms would be confused; use a smaller "
+                            f"--symprec, well below {0.5 * d:.3g} Å (default {SYMPREC_A:g})")
+
+
 def dataset(crystal: Crystal, symprec: float = SYMPREC_A):
     """spglib's symmetry dataset of ``crystal``; SymmetryError if spglib finds none."""
     if not (symprec > 0):
         raise SymmetryError(f"symprec must be a positive length in Å, got {symprec!r}")
-    d = crystal._shortest_contact()[0]
-    if symprec >= 0.5 * d:
-        # atoms within the tolerance of each other cannot be told apart: the search fails or returns nonsense
-        raise SymmetryError(f"the symmetry tolerance {symprec:g} Å is not below half the shortest contact of "
-                            f"{crystal.formula} ({d:.3g} Å): distinct atoms would be confused; use a --symprec "
-                            f"well below {0.5 * d:.3g} Å (default {SYMPREC_A:g})")
+    _check_tolerance(crystal, symprec)
     ds = spglib.get_symmetry_dataset(_cell(crystal), symprec=symprec)
     if ds is None:
         raise SymmetryError(
@@ -205,6 +209,7 @@ def _from_spglib_cell(cell, like: Crystal) -> Crystal:
 
 def primitive_cell(crystal: Crystal, symprec: float = SYMPREC_A) -> Crystal:
     """Primitive cell (spglib's standardised primitive, which may be rotated with respect to the input)."""
+    _check_tolerance(crystal, symprec)
     cell = spglib.standardize_cell(_cell(crystal), to_primitive=True, no_idealize=False, symprec=symprec)
     if cell is None:
         raise SymmetryError(f"the symmetry search found no primitive cell of {crystal.formula} at a tolerance of "
@@ -214,6 +219,7 @@ def primitive_cell(crystal: Crystal, symprec: float = SYMPREC_A) -> Crystal:
 
 def standard_cell(crystal: Crystal, symprec: float = SYMPREC_A) -> Crystal:
     """Standardised conventional cell (International Tables setting chosen by spglib)."""
+    _check_tolerance(crystal, symprec)
     cell = spglib.standardize_cell(_cell(crystal), to_primitive=False, no_idealize=False, symprec=symprec)
     if cell is None:
         raise SymmetryError(f"the symmetry search could not put {crystal.formula} in its standard setting at a "
