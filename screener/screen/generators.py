@@ -21,7 +21,13 @@ from screener.errors import ParameterError
 from screener.structure.crystal import Crystal
 from screener.structure.symmetry import SYMPREC_A
 
-GENERATORS = ("dimerise", "rhombohedral-split", "modulate")
+GENERATORS = ("dimerise", "rhombohedral-split", "modulate", "soft-mode")
+#: Generators run when none are named: the soft-mode search costs a whole q survey, so it is asked for by name.
+DEFAULT_GENERATORS = ("dimerise", "rhombohedral-split", "modulate")
+#: Soft-mode candidates: q denominators searched, most candidates handed to the comparator, largest supercell.
+SOFT_MODE_Q_GRID = 2
+SOFT_MODE_MAX = 3
+SOFT_MODE_MAX_ATOMS = 32
 
 
 
@@ -319,6 +325,130 @@ def modulate(parent, q_frac, polarisation="longitudinal", phase: float = 0.0) ->
     return fam
 
 
+def mode_family(parent, q_frac, vector, generator: str = "soft-mode", description: str = "") -> DistortionFamily | None:
+    """The displacement pattern u_s(L) = Re(e_s exp(2πi q·L + iφ)) of one Φ(q) eigenvector on the commensurate
+    supercell (convention of screener.screen.modes); φ ∈ {0, π/4, π/2} chosen to move the atoms most. ``vector``
+    is (3N,) complex, atom-major. None if the pattern moves nothing."""
+    crystal = parent.crystal if hasattr(parent, "symmetry") else parent
+    q = _rationalise(q_frac)
+    q_reduced = q - np.floor(q + 1e-9)
+    m = commensurate_supercell(q_reduced, crystal.lattice_A)
+    ref = crystal.supercell(m)
+    from screener.structure.crystal import lattice_points_in_supercell
+
+    trans = lattice_points_in_supercell(m)
+    det = len(trans)
+    e = np.asarray(vector, dtype=complex).reshape(crystal.n_atoms, 3)
+    wave = np.exp(2j * np.pi * (trans @ q_reduced))  # (det,)
+    # supercell atoms are parent-atom-major: index s·det + t
+    z = (e[:, None, :] * wave[None, :, None]).reshape(-1, 3)
+    best = None
+    for phi in (0.0, np.pi / 4, np.pi / 2):
+        u = (z * np.exp(1j * phi)).real
+        score = float(np.mean(np.linalg.norm(u, axis=1)))
+        if best is None or score > best[0] + 1e-9:
+            best = (score, u)
+    u = best[1]
+    norms = np.linalg.norm(u, axis=1)
+    if norms.max() < 1e-9:
+        return None
+    u[norms < 1e-9 * norms.max()] = 0.0
+    pattern = u / norms.max()
+    pol = pattern[int(np.argmax(norms))]
+    return DistortionFamily(
+        generator=generator,
+        description=description or f"soft pattern at q = {fraction_label(q_reduced)}",
+        q_frac=tuple(float(x) for x in q_reduced),
+        q_label=fraction_label(q_reduced),
+        supercell_matrix=m,
+        reference=ref,
+        pattern_A=pattern,
+        polarisation=tuple(float(x) for x in pol / np.linalg.norm(pol)),
+    )
+
+
+def soft_modes(parent, q_grid: int = SOFT_MODE_Q_GRID, max_modes: int = SOFT_MODE_MAX,
+               max_atoms: int = SOFT_MODE_MAX_ATOMS, notes: list | None = None) -> list[DistortionFamily]:
+    """Candidates from the parent's own stiffness: the softest eigenvectors of Φ(q) over the q grid (one per q
+    star, most negative first), each as a family of its own (generator 'soft-mode'). A uniform translation at Γ is
+    not a pattern. ``notes`` gets the q searched and what was left out."""
+    from screener.screen.modes import describe_pattern, survey
+
+    ctx = _parent(parent)
+    res = survey(ctx, q_grid)
+    n = ctx.crystal.n_atoms
+    found = []
+    for st in res.stiffness:
+        vals, vecs = st.eigenvalues_eV_per_A2, st.patterns
+        scale = 1e-6 * max(1.0, float(np.max(np.abs(vals))))
+        for a in np.flatnonzero(vals < -scale):
+            v = vecs[:, a]
+            if not any(st.q_frac):
+                # remove the uniform translation component; what is left must still move atoms
+                t = v.reshape(n, 3).mean(axis=0)
+                if np.linalg.norm(v.reshape(n, 3) - t) < 1e-3:
+                    continue
+            # a degenerate soft level: its eigenvectors are an arbitrary basis, so take the most symmetric
+            # pattern of the level (the A7 split of simple cubic is the (1,1,1) combination of three at R)
+            level = np.flatnonzero(np.abs(vals - vals[a]) < 1e-4 * max(1.0, abs(float(vals[a]))))
+            patterns = _symmetric_patterns(ctx, st.q_frac, vecs[:, level]) if len(level) > 1 else [v]
+            found.append((float(vals[a]), st.q_frac, patterns))
+            break  # the softest level of this q
+    found.sort(key=lambda x: x[0])
+    if notes is not None:
+        notes.append(f"soft-mode search: {len(res.searched)} q (denominators up to {q_grid}), "
+                     f"{len(found)} soft, the {min(max_modes, len(found))} softest handed on")
+    out = []
+    for value, q, patterns in found[:max_modes]:
+        for v in patterns:
+            fam = mode_family(ctx, q, v, description=f"soft pattern ({value:.2f} eV/Å²): "
+                                                       f"{describe_pattern(ctx.crystal, v, q)}")
+            if fam is None:
+                continue
+            if fam.reference.n_atoms > max_atoms:
+                if notes is not None:
+                    notes.append(f"soft pattern at q = {fam.q_label} needs {fam.reference.n_atoms} atoms (limit "
+                                 f"{max_atoms}): left out")
+                break
+            out.append(fam)
+    return out
+
+
+#: Trial directions for the most symmetric pattern of a degenerate level: ⟨100⟩, ⟨110⟩, ⟨111⟩ (Cartesian).
+_TRIAL_DIRECTIONS = np.array([d for d in itertools.product((-1, 0, 1), repeat=3) if any(d)
+                              and next(x for x in d if x) > 0], dtype=float)
+
+
+def _symmetric_patterns(ctx, q_frac, basis: np.ndarray, most: int = 3) -> list[np.ndarray]:
+    """High-symmetry vectors of a degenerate level spanned by ``basis`` (3N × d): the projections of one Cartesian
+    direction on every atom (⟨100⟩, ⟨110⟩, ⟨111⟩) and the basis itself, one per distinct space group of the
+    distorted structure, most symmetric first (at most ``most``). At harmonic order they cost the same; which one
+    the crystal takes is decided by the energy at finite amplitude, so each becomes a candidate (at R of simple
+    cubic: the tetragonal, orthorhombic and the A7 rhombohedral split)."""
+    from screener.structure.symmetry import analyse
+
+    n = ctx.crystal.n_atoms
+    q_basis, _ = np.linalg.qr(basis)
+    trials = []
+    for d in _TRIAL_DIRECTIONS:
+        t = np.tile(d / np.linalg.norm(d), n).astype(complex)
+        proj = q_basis @ (q_basis.conj().T @ t)
+        if np.linalg.norm(proj) > 1e-3:
+            trials.append(proj / np.linalg.norm(proj))
+    trials += [q_basis[:, k] for k in range(q_basis.shape[1])]
+    by_group: dict[int, tuple[float, np.ndarray]] = {}
+    for v in trials:
+        fam = mode_family(ctx, q_frac, v)
+        if fam is None:
+            continue
+        sym = analyse(fam.at(0.05), ctx.settings.symprec_A)
+        ops = len(sym.rotations) / fam.reference.n_atoms
+        if sym.number not in by_group or ops > by_group[sym.number][0] + 1e-9:
+            by_group[sym.number] = (ops, v)
+    ranked = sorted(by_group.items(), key=lambda kv: (-kv[1][0], -kv[0]))
+    return [v for _, (_, v) in ranked[:most]]
+
+
 def zone_boundary_points(parent, symprec: float = SYMPREC_A) -> list[np.ndarray]:
     """Symmetry-distinct non-zero time-reversal-invariant points q ∈ {0, 1/2}³ of the parent's reciprocal cell."""
     ctx = _parent(parent, symprec)
@@ -358,7 +488,7 @@ def default_candidates(parent, generators=None, extra_q=(), symprec: float = SYM
     screener.screen.parent) or a Crystal. ``notes`` (a list) collects one line per family that moves no atom.
     """
     parent = _parent(parent, symprec)
-    gens = tuple(generators) if generators else GENERATORS
+    gens = tuple(generators) if generators else DEFAULT_GENERATORS
     bad = [g for g in gens if g not in GENERATORS]
     if bad:
         raise ParameterError(f"unknown generator {bad[0]!r}; choose from {', '.join(GENERATORS)}")
@@ -378,6 +508,8 @@ def default_candidates(parent, generators=None, extra_q=(), symprec: float = SYM
                 raise
             if notes is not None:
                 notes.append(f"no displacement pattern of the modulate kind at q = {fraction_label(q)}: {exc}")
+    if "soft-mode" in gens:
+        fams += soft_modes(parent, notes=notes)
     rot_frac = parent.symmetry.rotations
     rot_cart = parent.point_group_cart
     unique: list[DistortionFamily] = []

@@ -460,7 +460,7 @@ def _add_rank_options(p: argparse.ArgumentParser) -> None:
     from screener.screen.generators import GENERATORS
 
     p.add_argument("--generator", action="append", metavar="NAME",
-                   help=f"candidate generator to run, one of {', '.join(GENERATORS)} (repeatable; default: all that "
+                   help=f"candidate generator to run, one of {', '.join(GENERATORS)} (repeatable; default: all but soft-mode, that "
                         "apply)")
     p.add_argument("--q", action="append", help='extra modulation wave-vector "qx,qy,qz" (repeatable)')
     p.add_argument("--pair-exponent", type=_finite_float, default=4.0, help="exponent m of the pair repulsion (default 4)")
