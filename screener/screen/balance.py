@@ -262,8 +262,10 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
                     f"{settings.amplitude_limit_fraction:g} of the shortest bond): the distortion may be larger "
                     "than this model can follow")
         lam_opt = float(lams[k])
+    elif k == 0:
+        lam_opt = 0.0  # the scan's lowest point is the parent: no gain to polish for the nominal closure
     else:
-        lo, hi = lams[max(k - 1, 0)], lams[k + 1]
+        lo, hi = lams[k - 1], lams[k + 1]
         res = minimize_scalar(lambda x: sum(e_at(x)[:2]), bounds=(lo, hi), method="bounded",
                               options={"xatol": 1e-4 * max(d_min, 1.0)})
         lam_opt = float(res.x) if res.fun < sum(e_at(lams[k])[:2]) else float(lams[k])
