@@ -262,11 +262,10 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
                     f"{settings.amplitude_limit_fraction:g} of the shortest bond): the distortion may be larger "
                     "than this model can follow")
         lam_opt = float(lams[k])
+    elif k == 0:
+        lam_opt = 0.0  # the scan's lowest point is the parent: no gain to polish for the nominal closure
     else:
-        lo, hi = lams[max(k - 1, 0)], lams[k + 1]
-        res = minimize_scalar(lambda x: sum(e_at(x)[:2]), bounds=(lo, hi), method="bounded",
-                              options={"xatol": 1e-4 * max(d_min, 1.0)})
-        lam_opt = float(res.x) if res.fun < sum(e_at(lams[k])[:2]) else float(lams[k])
+        lam_opt = _polish(lams[k - 1:k + 2], lambda x: sum(e_at(x)[:2]))
         if (sum(e_at(lam_opt)[:2]) - (e0b + e0e)) * 1e3 > -tol:
             lam_opt = 0.0  # no gain worth the name for the nominal closure
     # where the nominal closure gains nothing but another member of its range does, the mesh is converged at
@@ -307,11 +306,9 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         note.append(f"ΔE not converged to {settings.convergence_meV_per_atom} meV/atom on two successive meshes "
                     f"(last mesh {mesh}, last change {residual:.2f} meV/atom)")
     if lam_opt > 0 and mesh != coarse_mesh:
-        # the amplitude came from the coarse scan: polish it on the final mesh
-        res = minimize_scalar(lambda x: sum(e_at(x, mesh)[:2]), bounds=(0.5 * lam_opt, min(1.5 * lam_opt, lam_max)),
-                              method="bounded", options={"xatol": 1e-4 * max(d_min, 1.0)})
-        if res.fun < sum(e_at(lam_opt, mesh)[:2]):
-            lam_opt = float(res.x)
+        # the amplitude came from the coarse scan: polish it on the final mesh, one scan step either side
+        around = np.clip([lam_opt - step, lam_opt, lam_opt + step], 0.0, lam_max)
+        lam_opt = _polish(around, lambda x: sum(e_at(x, mesh)[:2]))
     if lam_opt > 0:
         d_band, d_el, res_opt = delta(mesh, lam_opt)
     delta_total = d_band + d_el
@@ -400,6 +397,33 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     )
 
 
+def _parabola_vertex(x, y) -> tuple[float, float] | None:
+    """(abscissa, value) of the vertex of the parabola through three points with x0 < x1 < x2, or None when the
+    parabola has no minimum inside [x0, x2]."""
+    (x0, x1, x2), (y0, y1, y2) = (float(v) for v in x), (float(v) for v in y)
+    d = (x0 - x1) * (x0 - x2) * (x1 - x2)
+    a = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / d
+    b = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / d
+    c = (x1 * x2 * (x1 - x2) * y0 + x2 * x0 * (x2 - x0) * y1 + x0 * x1 * (x0 - x1) * y2) / d
+    if not (a > 0 and x0 <= -b / (2 * a) <= x2):
+        return None
+    return -b / (2 * a), c - b**2 / (4 * a)
+
+
+def _polish(x, energy) -> float:
+    """Amplitude of the lowest energy among the points x (ascending) and the vertex of the parabola through them:
+    the vertex when it is a minimum inside the bracket whose energy, evaluated exactly, is below every sampled
+    point; else the best sampled point. ``energy`` is called once per point (it is expected to cache)."""
+    x = np.unique(np.asarray(x, dtype=float))
+    y = np.array([energy(v) for v in x])
+    j = int(np.argmin(y))
+    best = float(x[j])
+    vertex = _parabola_vertex(x, y) if len(x) == 3 else None
+    if vertex is not None and x[0] < vertex[0] < x[2] and energy(vertex[0]) < y[j]:
+        best = float(vertex[0])
+    return best
+
+
 def _parabola_minimum(x: np.ndarray, y: np.ndarray) -> float:
     """Lowest value of y on the grid x (NaN = not evaluated), refined by the parabola through the three points
     around it."""
@@ -407,11 +431,7 @@ def _parabola_minimum(x: np.ndarray, y: np.ndarray) -> float:
     j = int(np.nanargmin(y))
     best = float(y[j])
     if 0 < j < len(y) - 1 and np.isfinite(y[j - 1]) and np.isfinite(y[j + 1]):
-        (x0, x1, x2), (y0, y1, y2) = x[j - 1:j + 2], y[j - 1:j + 2]
-        d = (x0 - x1) * (x0 - x2) * (x1 - x2)
-        a = (x2 * (y1 - y0) + x1 * (y0 - y2) + x0 * (y2 - y1)) / d
-        b = (x2**2 * (y0 - y1) + x1**2 * (y2 - y0) + x0**2 * (y1 - y2)) / d
-        c = (x1 * x2 * (x1 - x2) * y0 + x2 * x0 * (x2 - x0) * y1 + x0 * x1 * (x0 - x1) * y2) / d
-        if a > 0 and x0 <= -b / (2 * a) <= x2:
-            best = min(best, float(c - b**2 / (4 * a)))
+        vertex = _parabola_vertex(x[j - 1:j + 2], y[j - 1:j + 2])
+        if vertex is not None:
+            best = min(best, float(vertex[1]))
     return best

@@ -230,3 +230,35 @@ def test_tiny_amplitudes_are_not_folded_with_the_parent_symmetry():
     full = solve_on_mesh(build_model(fam.at(1e-4), params, bonds=ev.bonds), (12, 12, 12), use_symmetry=False)
     assert band * fam.n_atoms == pytest.approx(full.band_energy_eV, abs=1e-9)
     assert res.n_kpoints_irreducible > 72  # 72 would be the parent's wedge of this mesh
+
+
+def test_amplitude_polish_takes_the_parabola_vertex_only_when_it_really_is_lower():
+    # the vertex of y = a (x - x0)² + c lies at x0 (elementary algebra, from memory); the polish calls the energy
+    # once per distinct point and returns a point whose exact energy it has evaluated
+    from screener.screen.balance import _polish
+
+    calls = []
+
+    def counted(f):
+        def energy(x):
+            calls.append(float(x))
+            return f(x)
+        return energy
+
+    assert _polish([0.1, 0.2, 0.3], counted(lambda x: 3.0 * (x - 0.23) ** 2 - 1.0)) == pytest.approx(0.23, abs=1e-12)
+    assert len(calls) == 4  # three points and the vertex
+    # a curve whose true value at the parabola's vertex is above the best sample (a bump between the samples):
+    # the best sample, although the parabola promised less
+    calls.clear()
+    samples = (0.1, 0.2, 0.3)
+    bumpy = counted(lambda x: 10.0 * (x - 0.22) ** 2 if min(abs(x - s) for s in samples) < 1e-12 else 1.0)
+    assert _polish(list(samples), bumpy) == 0.2
+    assert len(calls) == 4
+    # no minimum inside the bracket (concave, or monotonic beyond it): the best sample, no extra evaluation
+    calls.clear()
+    assert _polish([0.1, 0.2, 0.3], counted(lambda x: -((x - 0.2) ** 2))) in (0.1, 0.3)
+    assert len(calls) == 3
+    # points clipped onto each other: fewer than three distinct points, the best of them
+    calls.clear()
+    assert _polish([0.2, 0.3, 0.3], counted(lambda x: (x - 0.26) ** 2)) == 0.3
+    assert len(calls) == 2
