@@ -337,7 +337,6 @@ def mode_family(parent, q_frac, vector, generator: str = "soft-mode", descriptio
     from screener.structure.crystal import lattice_points_in_supercell
 
     trans = lattice_points_in_supercell(m)
-    det = len(trans)
     e = np.asarray(vector, dtype=complex).reshape(crystal.n_atoms, 3)
     wave = np.exp(2j * np.pi * (trans @ q_reduced))  # (det,)
     # supercell atoms are parent-atom-major: index s·det + t
