@@ -617,19 +617,43 @@ def _on_sigterm(signum, frame):
     raise Terminated()
 
 
+#: Modules each command needs, imported before it runs (where a signal is only noted, see main).
+_COMMAND_MODULES = {
+    "info": ("numpy", "screener.structure.symmetry", "screener.structure.formats.cif"),
+    "bands": ("numpy", "screener.bz.bands", "screener.structure.formats.cif"),
+    "rank": ("numpy", "screener.screen.rank", "screener.show.report", "screener.structure.formats.cif"),
+    "batch": ("numpy", "screener.run.batch", "screener.screen.rank"),
+    "demo": ("numpy", "screener.show.report", "screener.screen.rank"),
+    "explain": ("numpy", "screener.screen.explain", "screener.structure.formats.cif"),
+    "modes": ("numpy", "screener.screen.modes", "screener.screen.parent", "screener.structure.formats.cif"),
+}
+
+
 def main(argv=None) -> int:
+    import importlib
     import signal
     import warnings
 
+    # While the numerical stack is imported, a signal only takes note: an interrupt raised inside a compiled
+    # module's import can abort the interpreter instead of unwinding
+    pending: list[int] = []
     try:
-        signal.signal(signal.SIGTERM, _on_sigterm)
+        signal.signal(signal.SIGINT, lambda signum, frame: pending.append(signum))
+        signal.signal(signal.SIGTERM, lambda signum, frame: pending.append(signum))
+        main_thread = True
     except ValueError:
-        pass  # not the main thread (e.g. called from a library's worker thread): keep the default
+        main_thread = False  # not the main thread (e.g. called from a library's worker thread): keep the defaults
     try:
         parser = build_parser()  # imports the generator registry, i.e. the numerical stack
         args = parser.parse_args(argv)
-    except KeyboardInterrupt as exc:
-        return _interrupted(exc)
+        for name in _COMMAND_MODULES.get(args.command, ()):
+            importlib.import_module(name)
+    finally:
+        if main_thread:
+            signal.signal(signal.SIGINT, signal.default_int_handler)
+            signal.signal(signal.SIGTERM, _on_sigterm)
+    if pending:
+        return _interrupted(Terminated() if pending[0] == signal.SIGTERM else KeyboardInterrupt())
 
     def one_line_warning(message, category, filename, lineno, file=None, line=None):
         print(f"screener {args.command}: warning: {message}", file=sys.stderr)
