@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 from tqdm.auto import tqdm
 
+from screener.errors import ParameterError
 from screener.screen.balance import (
     CandidateResult,
     ParentEnergetics,
@@ -205,6 +206,25 @@ def _in_input_setting(c: CandidateResult, context) -> CandidateResult:
     return replace(c, q_frac=tuple(float(x) for x in q), q_label=fraction_label(q), structure=moved, bonds=bonds)
 
 
+def _check_supercell_sizes(q_input, q_primitive, context, settings: ScreenSettings) -> None:
+    """Refuse, before any work, a requested wave-vector whose commensurate supercell exceeds
+    ``settings.max_supercell_atoms`` atoms (q as given, in the input's basis, and on the screened primitive cell)."""
+    from screener.screen.generators import _rationalise, commensurate_supercell, fraction_label
+
+    limit = int(settings.max_supercell_atoms)
+    cell = context.crystal
+    for q_in, q in zip(q_input, q_primitive, strict=True):
+        q = _rationalise(q)
+        index = round(float(np.linalg.det(commensurate_supercell(q - np.floor(q + 1e-9), cell.lattice_A))))
+        atoms = index * cell.n_atoms
+        if atoms > limit:
+            raise ParameterError(
+                f"--q {fraction_label(q_in)} needs a supercell of {atoms} atoms ({index} × the {cell.n_atoms}-atom "
+                f"primitive cell), more than the limit of {limit}; raise it with --max-supercell-atoms "
+                f"(max_supercell_atoms in ScreenSettings) if you accept the cost, which grows as atoms³"
+            )
+
+
 def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings: ScreenSettings | None = None,
          progress: bool = True, relax_cell: bool = False) -> RankResult:
     """Generate the candidate distortions of ``crystal``, evaluate each and rank them.
@@ -223,7 +243,9 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     settings, params, sym = context.settings, context.params, context.symmetry
     # --q is given in the input's reciprocal basis; the candidates live on the standardised primitive cell
     m = context.primitive.supercell_matrix
+    q_input = [tuple(float(x) for x in np.asarray(q, dtype=float)) for q in extra_q]
     extra_q = [tuple(float(x) for x in np.asarray(q, dtype=float) @ np.linalg.inv(m.T)) for q in extra_q]
+    _check_supercell_sizes(q_input, extra_q, context, settings)
     notes: list[str] = []
     families = default_candidates(context, generators, extra_q, settings.symprec_A, relax_cell=relax_cell,
                                   notes=notes)
