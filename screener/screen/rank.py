@@ -225,6 +225,24 @@ def _check_supercell_sizes(q_input, q_primitive, context, settings: ScreenSettin
             )
 
 
+def _check_mesh_sizes(families, context, settings: ScreenSettings) -> None:
+    """Refuse, before any work, a starting k-mesh of the parent or of a candidate's supercell whose points times
+    orbitals exceed ``kmesh.MAX_ORBITAL_KPOINTS`` (the same check `solve_on_mesh` makes on every mesh)."""
+    from screener.bz.kmesh import check_mesh_size, mesh_from_spacing
+    from screener.screen.balance import family_mesh
+
+    norb = context.model.n_orbitals
+    check_mesh_size(mesh_from_spacing(context.crystal, settings.k_step_per_A * settings.refine_factor,
+                                      context.model.periodic), norb, f"the parent {context.crystal.formula}")
+    for f in families:
+        b = context.supercell_bonds(f.supercell_matrix, f.reference)
+        # directions no bond crosses get one k-point, as the supercell's model will mark them (tb.model)
+        periodic = tuple(bool(x) for x in np.any(b.image != 0, axis=0)) if len(b.i) else (False, False, False)
+        index = round(abs(float(np.linalg.det(f.supercell_matrix))))
+        check_mesh_size(family_mesh(f, settings.k_step_per_A, periodic), norb * index,
+                        f"the {f.generator} candidate at q = {f.q_label} ({f.n_atoms} atoms)")
+
+
 def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings: ScreenSettings | None = None,
          progress: bool = True, relax_cell: bool = False) -> RankResult:
     """Generate the candidate distortions of ``crystal``, evaluate each and rank them.
@@ -249,6 +267,7 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     notes: list[str] = []
     families = default_candidates(context, generators, extra_q, settings.symprec_A, relax_cell=relax_cell,
                                   notes=notes)
+    _check_mesh_sizes(families, context, settings)
     bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
                disable=not progress, leave=False)
     try:

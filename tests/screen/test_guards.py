@@ -70,3 +70,24 @@ def test_a_supercell_at_the_limit_is_screened():
     settings = ScreenSettings(k_step_per_A=0.35, max_refinements=1, max_supercell_atoms=3)
     result = rank(simple_cubic(), generators=["modulate"], extra_q=[(1 / 3, 0, 0)], settings=settings, progress=False)
     assert any(c.q_label == "(1/3, 0, 0)" and c.supercell_atoms == 3 for c in result.candidates)
+
+
+def test_mesh_refinement_stops_at_the_orbital_kpoint_limit(monkeypatch):
+    # a refinement beyond the orbitals × k-points limit is not refused mid-screen (the work done so far would be
+    # lost) but ends the refinement with a note, as the existing max_kpoints limit does (issue 14). The limit
+    # is lowered to the starting mesh of a candidate that needs refining: simple-cubic As at 2.78 Å splits
+    # rhombohedrally (see test_balance)
+    import screener.screen.balance as balance
+    from screener.bz.kmesh import orbital_kpoints
+    from screener.screen.generators import rhombohedral_split
+    from screener.screen.parent import build_parent
+
+    settings = ScreenSettings(k_step_per_A=0.3, max_refinements=2)
+    context = build_parent(simple_cubic(2.78), settings=settings)
+    (fam,) = rhombohedral_split(context)
+    norb = context.model.n_orbitals * fam.n_atoms // context.crystal.n_atoms
+    start = orbital_kpoints(balance.family_mesh(fam, settings.k_step_per_A, (True, True, True)), norb)
+    monkeypatch.setattr(balance, "MAX_ORBITAL_KPOINTS", start)
+    res = balance.evaluate_family(fam, context)
+    assert "mesh refinement stopped at the limit" in res.note and "orbitals × k-points" in res.note
+    assert orbital_kpoints(res.kmesh, norb) <= start
