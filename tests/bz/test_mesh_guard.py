@@ -40,7 +40,7 @@ def test_limit_is_on_the_product_and_inclusive():
 def test_tiny_k_step_is_refused_before_any_diagonalisation():
     crystal = simple_cubic()
     model = build_model(crystal, default_parameters(["As"]))
-    # |b| = 2π/a = 2.167 Å⁻¹ for a = 2.9 Å, so a step of 1e-3 Å⁻¹ needs ceil(2166.6) = 2167 points per direction
+    # |b| = 2π/a = 2.167 Å⁻¹ for a = 2.9 Å, so a step of 1e-3 Å⁻¹ needs ceil(2166.6) = 2167 points a direction
     # (Monkhorst–Pack sizes from a spacing, arithmetic): 2167³ ≈ 1.0e10 points × 4 sp³ orbitals (s, px, py, pz)
     assert mesh_from_spacing(crystal, 1e-3) == (2167, 2167, 2167)
     assert model.n_orbitals == 4

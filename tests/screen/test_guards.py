@@ -1,4 +1,5 @@
-"""Hostile and extreme input (issue 14): a requested --q whose supercell is too large is refused before any work."""
+"""Hostile and extreme input (issue 14): a requested --q whose supercell is too large is refused before any work;
+a k-mesh refinement beyond the orbitals × k-points limit ends with a note (the limit: tests/bz/test_mesh_guard.py)."""
 
 import time
 
