@@ -46,11 +46,17 @@ def test_limit_is_counted_on_the_primitive_cell():
              progress=False)
 
 
-@pytest.mark.parametrize("bad", [0, -3, 2.5, True, "64"])
+@pytest.mark.parametrize("bad", [0, -3, 2.5, True, "64", float("inf"), float("nan")])
 def test_limit_must_be_a_positive_whole_number(bad):
     # a limit below one atom or a fraction of an atom means nothing (definition of the setting)
     with pytest.raises(ParameterError, match="max_supercell_atoms must be a positive whole number"):
         ScreenSettings(max_supercell_atoms=bad)
+
+
+def test_limit_accepts_whole_numbers_of_any_numeric_type():
+    # a limit read back from a JSON store or a numpy array is still a whole number (definition of the setting)
+    assert ScreenSettings(max_supercell_atoms=np.int64(8)).max_supercell_atoms == 8
+    assert ScreenSettings(max_supercell_atoms=128.0).max_supercell_atoms == 128
 
 
 def test_cli_refuses_with_one_line_and_exit_code_2(tmp_path, capsys):
