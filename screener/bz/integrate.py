@@ -156,11 +156,12 @@ def solve_on_mesh(model, mesh=None, *, k_step_per_A=0.15, method="tetrahedron", 
     """Band energy of a tight-binding model in one call: mesh → irreducible wedge → eigenvalues → integration.
 
     ``mesh`` defaults to ``kmesh.mesh_from_spacing(model.crystal, k_step_per_A, model.periodic)``; a given
-    mesh is forced to 1 along directions the model marks non-periodic. Symmetry reduction uses
+    mesh is forced to 1 along directions the model marks non-periodic; a mesh whose points times the model's orbitals
+    exceed ``kmesh.MAX_ORBITAL_KPOINTS`` is refused (ParameterError) before any work. Symmetry reduction uses
     ``kmesh.irreducible_mesh`` (with ``rotations`` of the model's crystal when already known); the tetrahedra are
     split along the crystal's shortest reciprocal diagonal.
     """
-    from screener.bz.kmesh import _check_mesh, irreducible_mesh, mesh_from_spacing
+    from screener.bz.kmesh import _check_mesh, check_mesh_size, irreducible_mesh, mesh_from_spacing
 
     method = _norm_method(method)
     periodic = tuple(bool(p) for p in getattr(model, "periodic", (True, True, True)))
@@ -168,6 +169,8 @@ def solve_on_mesh(model, mesh=None, *, k_step_per_A=0.15, method="tetrahedron", 
         mesh = mesh_from_spacing(model.crystal, k_step_per_A, periodic)
     else:
         mesh = tuple(m if p else 1 for m, p in zip(_check_mesh(mesh), periodic, strict=True))
+    # a model without an orbital count (a bare analytic band) counts one orbital per site
+    check_mesh_size(mesh, getattr(model, "n_orbitals", model.crystal.n_atoms), model.crystal.formula)
     kmesh = irreducible_mesh(model.crystal, mesh, symprec=symprec, use_symmetry=use_symmetry,
                              rotations=rotations)
     eigs = np.asarray(model.eigenvalues(kmesh.kfrac))

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import minimize_scalar
 
-from screener.bz.kmesh import mesh_from_spacing
+from screener.bz.kmesh import MAX_ORBITAL_KPOINTS, mesh_from_spacing, orbital_kpoints
 from screener.screen.closure import ElasticModel, bond_lengths_A, elastic_model_for
 from screener.screen.generators import DistortionFamily, follow_bonds
 from screener.screen.parent import Parent, ParentEnergetics, parent_energetics  # noqa: F401  (re-exported)
@@ -296,6 +296,9 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
             continue
         if np.prod(finer) > settings.max_kpoints:
             note.append(f"mesh refinement stopped at the {settings.max_kpoints}-point limit")
+            break
+        if orbital_kpoints(finer, ev.model0.n_orbitals) > MAX_ORBITAL_KPOINTS:
+            note.append(f"mesh refinement stopped at the limit of {MAX_ORBITAL_KPOINTS:.0e} orbitals × k-points")
             break
         nb, ne, nr = delta(finer, lam_ref)
         residual = abs((nb + ne) - (d_band + d_el))

@@ -12,6 +12,7 @@ Atom order in the supercell is fixed for the whole family, so the parent's bond 
 from __future__ import annotations
 
 import itertools
+import math
 from dataclasses import dataclass, replace
 from fractions import Fraction
 
@@ -105,10 +106,72 @@ def _rationalise(q, max_denominator: int = 12) -> np.ndarray:
     return np.array([float(f) for f in fr])
 
 
+def _kernel_basis(num, den: int, index: int) -> np.ndarray:
+    """(3, 3) int rows spanning {n ∈ Z³ : num·n ≡ 0 (mod den)}, a sublattice of Z³ of index ``index``.
+
+    Column operations of the extended Euclidean algorithm give a unimodular U with num·U = (h, 0, 0),
+    h = ±gcd(num); the condition on n = U m then reads h m₀ ≡ 0 (mod den), i.e. m₀ ∈ (den / gcd(h, den)) Z,
+    so the rows index·U[:, 0], U[:, 1], U[:, 2] are a basis. Exact integer arithmetic throughout.
+    """
+    a = [int(x) for x in num]
+    cols = [[int(i == j) for i in range(3)] for j in range(3)]  # the columns of U
+    for j in (1, 2):
+        while a[j] != 0:
+            t = a[0] // a[j]
+            a[0] -= t * a[j]
+            cols[0] = [x - t * y for x, y in zip(cols[0], cols[j], strict=True)]
+            a[0], a[j] = a[j], a[0]
+            cols[0], cols[j] = cols[j], cols[0]
+    if den // math.gcd(a[0], den) != index:
+        raise ParameterError(f"could not build a commensurate supercell of index {index}")
+    return np.array([[index * x for x in cols[0]], cols[1], cols[2]], dtype=np.int64)
+
+
+def _gram_schmidt(b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Gram–Schmidt coefficients mu (3, 3) and orthogonalised rows of ``b`` (3, 3)."""
+    bs = np.array(b, dtype=float)
+    mu = np.eye(3)
+    for i in range(3):
+        for j in range(i):
+            mu[i, j] = b[i] @ bs[j] / (bs[j] @ bs[j])
+            bs[i] = bs[i] - mu[i, j] * bs[j]
+    return mu, bs
+
+
+def _lll(m: np.ndarray, lattice: np.ndarray, delta: float = 0.99) -> np.ndarray:
+    """Integer rows ``m`` LLL-reduced against the Cartesian metric of ``lattice``: the same lattice, short rows
+    (Lenstra, Lenstra & Lovász, Math. Ann. 261, 515 (1982))."""
+    m = np.array(m, dtype=np.int64)
+    k = 1
+    for _ in range(10_000):  # a 3-D reduction ends after a few swaps; the cap only guards against round-off cycles
+        if k >= 3:
+            break
+        for j in range(k - 1, -1, -1):
+            mu, _ = _gram_schmidt(m @ lattice)
+            r = int(round(mu[k, j]))
+            if r:
+                m[k] -= r * m[j]
+        mu, bs = _gram_schmidt(m @ lattice)
+        if bs[k] @ bs[k] >= (delta - mu[k, k - 1] ** 2) * (bs[k - 1] @ bs[k - 1]):
+            k += 1
+        else:
+            m[[k - 1, k]] = m[[k, k - 1]]
+            k = max(k - 1, 1)
+    return m
+
+
+#: Largest box of coefficients searched around the reduced basis for the shortest supercell vectors; a reduced
+#: 3-D basis needs a few per direction, so the cap is never reached in practice (common practice, no source).
+_MAX_SEARCH = 2_000_000
+
+
 def commensurate_supercell(q_frac, lattice_A) -> np.ndarray:
     """Smallest integer matrix M whose rows n_i satisfy q·n_i ∈ Z, preferring short Cartesian vectors.
 
-    The supercell of index N / gcd(N, N q) holds the modulation exp(2πi q·n) with period one.
+    The supercell of index N / gcd(N, N q) holds the modulation exp(2πi q·n) with period one. Its lattice
+    {n : q·n ∈ Z} is built directly (`_kernel_basis`) and reduced (`_lll`); then every lattice vector no longer
+    than the longest reduced row is listed, and M takes the shortest, the shortest one not parallel to it and
+    the shortest that completes a basis, with det M = +index.
     """
     q = _rationalise(q_frac)
     fr = [Fraction(float(x)).limit_denominator(12) for x in q]
@@ -117,23 +180,33 @@ def commensurate_supercell(q_frac, lattice_A) -> np.ndarray:
     index = den // int(np.gcd.reduce(np.append(num, den)))
     if index == 1:
         return np.eye(3, dtype=int)
-    span = range(-index, index + 1)
-    cands = np.array([n for n in itertools.product(span, span, span) if any(n)])
-    ok = np.mod(cands @ num, den) == 0
-    cands = cands[ok]
-    lengths = np.linalg.norm(cands @ np.asarray(lattice_A, dtype=float), axis=1)
-    cands = cands[np.lexsort((np.abs(cands).sum(1), lengths))]
-    # greedy shortest basis; the third vector must make the index exact
-    for a, b in itertools.combinations(range(min(len(cands), 40)), 2):
-        v1, v2 = cands[a], cands[b]
-        if np.linalg.norm(np.cross(v1, v2)) < 1e-9:
-            continue
-        for v3 in cands:
-            d = round(float(np.linalg.det(np.array([v1, v2, v3]))))
-            if abs(d) == index:
-                m = np.array([v1, v2, v3 if d > 0 else -v3])
-                return m
-    raise ParameterError(f"could not build a commensurate supercell for q = {fraction_label(q)}")
+    lattice = np.asarray(lattice_A, dtype=float)
+    red = _lll(_kernel_basis(num, den, index), lattice)
+    b = red @ lattice
+    reach = float(np.max(np.linalg.norm(b, axis=1))) * (1 + 1e-9) + 1e-12
+    # a vector c·b no longer than `reach` has |c_i| ≤ reach |d_i| with d the dual rows of b
+    bound = np.floor(reach * np.linalg.norm(np.linalg.inv(b).T, axis=1) + 1e-9).astype(int)
+    if np.prod(2 * bound + 1) <= _MAX_SEARCH:
+        grid = np.stack(np.meshgrid(*(np.arange(-c, c + 1) for c in bound), indexing="ij"), -1).reshape(-1, 3)
+        cands = grid[np.any(grid != 0, axis=1)] @ red
+        lengths = np.linalg.norm(cands @ lattice, axis=1)
+        keep = lengths <= reach
+        cands, lengths = cands[keep], lengths[keep]
+        # shortest first, then the smallest integer coefficients, then lexicographic (a fixed order)
+        cands = cands[np.lexsort((cands[:, 2], cands[:, 1], cands[:, 0], np.abs(cands).sum(1), lengths))]
+        for a, c in itertools.combinations(range(min(len(cands), 40)), 2):
+            v1, v2 = cands[a], cands[c]
+            normal = np.cross(v1, v2)
+            if not normal.any():
+                continue
+            dets = cands @ normal  # det [v1; v2; v3] for every candidate v3, exact in integers
+            hit = np.flatnonzero(np.abs(dets) == index)
+            if len(hit):
+                v3 = cands[hit[0]]
+                return np.array([v1, v2, v3 if dets[hit[0]] > 0 else -v3])
+    if round(float(np.linalg.det(red))) < 0:
+        red[2] = -red[2]
+    return red
 
 
 def _build_family(parent: Crystal, generator: str, description: str, q_frac, polarisation_cart,

@@ -148,7 +148,7 @@ def mesh_states(model, mesh, *, method: str = "fermi-dirac", width_eV: float = 0
     """Diagonalise the model once on the full Γ-centred ``mesh`` and occupy the bands (rigid-band ``n_electrons``)."""
     from screener.bz.common import SMEARING_METHODS
     from screener.bz.integrate import integrate
-    from screener.bz.kmesh import _check_mesh, irreducible_mesh
+    from screener.bz.kmesh import _check_mesh, check_mesh_size, irreducible_mesh
     from screener.bz.smearing import delta, occupation
     from screener.tb.model import single_blas_thread
 
@@ -156,6 +156,7 @@ def mesh_states(model, mesh, *, method: str = "fermi-dirac", width_eV: float = 0
         raise ParameterError(f"stiffness needs smeared occupations: method must be 'fermi-dirac' or 'gaussian', "
                              f"got {method!r} (allowed smearing methods: {', '.join(SMEARING_METHODS)})")
     mesh = _check_mesh(mesh)
+    check_mesh_size(mesh, model.n_orbitals, model.crystal.formula)
     addr = np.stack(np.meshgrid(*(np.arange(n) for n in mesh), indexing="ij"), -1).reshape(-1, 3)
     k = addr / np.asarray(mesh, dtype=float)
     with single_blas_thread():

@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 from tqdm.auto import tqdm
 
+from screener.errors import ParameterError
 from screener.screen.balance import (
     CandidateResult,
     ParentEnergetics,
@@ -205,6 +206,43 @@ def _in_input_setting(c: CandidateResult, context) -> CandidateResult:
     return replace(c, q_frac=tuple(float(x) for x in q), q_label=fraction_label(q), structure=moved, bonds=bonds)
 
 
+def _check_supercell_sizes(q_input, q_primitive, context, settings: ScreenSettings) -> None:
+    """Refuse, before any work, a requested wave-vector whose commensurate supercell exceeds
+    ``settings.max_supercell_atoms`` atoms (q as given, in the input's basis, and on the screened primitive cell)."""
+    from screener.screen.generators import _rationalise, commensurate_supercell, fraction_label
+
+    limit = int(settings.max_supercell_atoms)
+    cell = context.crystal
+    for q_in, q in zip(q_input, q_primitive, strict=True):
+        q = _rationalise(q)
+        index = round(float(np.linalg.det(commensurate_supercell(q - np.floor(q + 1e-9), cell.lattice_A))))
+        atoms = index * cell.n_atoms
+        if atoms > limit:
+            raise ParameterError(
+                f"--q {fraction_label(q_in)} needs a supercell of {atoms} atoms ({index} × the {cell.n_atoms}-atom "
+                f"primitive cell), more than the limit of {limit}; raise it with --max-supercell-atoms "
+                f"(max_supercell_atoms in ScreenSettings) if you accept the cost, which grows as atoms³"
+            )
+
+
+def _check_mesh_sizes(families, context, settings: ScreenSettings) -> None:
+    """Refuse, before any work, a starting k-mesh of the parent or of a candidate's supercell whose points times
+    orbitals exceed ``kmesh.MAX_ORBITAL_KPOINTS`` (the same check `solve_on_mesh` makes on every mesh)."""
+    from screener.bz.kmesh import check_mesh_size, mesh_from_spacing
+    from screener.screen.balance import family_mesh
+
+    norb = context.model.n_orbitals
+    check_mesh_size(mesh_from_spacing(context.crystal, settings.k_step_per_A * settings.refine_factor,
+                                      context.model.periodic), norb, f"the parent {context.crystal.formula}")
+    for f in families:
+        b = context.supercell_bonds(f.supercell_matrix, f.reference)
+        # directions no bond crosses get one k-point, as the supercell's model will mark them (tb.model)
+        periodic = tuple(bool(x) for x in np.any(b.image != 0, axis=0)) if len(b.i) else (False, False, False)
+        index = round(abs(float(np.linalg.det(f.supercell_matrix))))
+        check_mesh_size(family_mesh(f, settings.k_step_per_A, periodic), norb * index,
+                        f"the {f.generator} candidate at q = {f.q_label} ({f.n_atoms} atoms)")
+
+
 def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings: ScreenSettings | None = None,
          progress: bool = True, relax_cell: bool = False) -> RankResult:
     """Generate the candidate distortions of ``crystal``, evaluate each and rank them.
@@ -223,10 +261,13 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     settings, params, sym = context.settings, context.params, context.symmetry
     # --q is given in the input's reciprocal basis; the candidates live on the standardised primitive cell
     m = context.primitive.supercell_matrix
+    q_input = [tuple(float(x) for x in np.asarray(q, dtype=float)) for q in extra_q]
     extra_q = [tuple(float(x) for x in np.asarray(q, dtype=float) @ np.linalg.inv(m.T)) for q in extra_q]
+    _check_supercell_sizes(q_input, extra_q, context, settings)
     notes: list[str] = []
     families = default_candidates(context, generators, extra_q, settings.symprec_A, relax_cell=relax_cell,
                                   notes=notes)
+    _check_mesh_sizes(families, context, settings)
     bar = tqdm(total=None, desc=f"screening {crystal.formula}", unit=" evaluations", delay=1.0,
                disable=not progress, leave=False)
     try:

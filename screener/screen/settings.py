@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+import numbers
 from dataclasses import dataclass
 
 from screener.errors import ParameterError
@@ -23,6 +25,10 @@ class ScreenSettings:
     """Mesh refinements tried before a candidate is flagged unconverged."""
     max_kpoints: int = 150_000
     """Largest full k-mesh (points) a refinement may use; beyond it the candidate is flagged unconverged."""
+    max_supercell_atoms: int = 64
+    """Largest supercell (atoms) a requested extra wave-vector (--q) may need; a larger one is refused before any
+    work. Diagonalisation costs grow as atoms³ per k-point (`screener bands` on a 500-atom cell ran over 5 minutes
+    and 2 GB on a 2-core machine); the default 64 is common practice, no source."""
     refine_factor: float = 0.7
     """Each refinement multiplies the k-step by this factor."""
     max_amplitude_fraction: float = 0.12
@@ -77,5 +83,8 @@ class ScreenSettings:
             raise ParameterError(f"closure must be one of {', '.join(CLOSURES)}, got {self.closure!r}")
         if not 0 < self.refine_factor < 1:
             raise ParameterError(f"refine_factor must lie between 0 and 1, got {self.refine_factor!r}")
+        v = self.max_supercell_atoms
+        if isinstance(v, bool) or not isinstance(v, numbers.Real) or not (math.isfinite(v) and v >= 1 and v == int(v)):
+            raise ParameterError(f"max_supercell_atoms must be a positive whole number, got {v!r}")
         if int(self.n_scan) < 3:
             raise ParameterError(f"n_scan must be at least 3, got {self.n_scan!r}")

@@ -271,6 +271,7 @@ def _screen_settings(args):
         bulk_modulus_GPa=args.bulk_modulus_GPa,
         threshold_meV_per_atom=args.threshold_meV,
         symprec_A=args.symprec,
+        max_supercell_atoms=args.max_supercell_atoms,
     )
 
 
@@ -476,6 +477,8 @@ def _add_rank_options(p: argparse.ArgumentParser) -> None:
                    help="gain (meV/atom) beyond which a converged candidate is 'unstable' (default 1)")
     p.add_argument("--relax-cell", action="store_true",
                    help="relax the rhombohedral angle together with the rhombohedral split (slower)")
+    p.add_argument("--max-supercell-atoms", type=int, default=64,
+                   help="refuse a --q whose supercell has more atoms than this (default 64)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 

@@ -76,10 +76,11 @@ def bond_energies(model, mesh, *, method: str = "tetrahedron", width_eV: float =
     ``energies_eV`` (optional grid) also returns the energy-resolved populations, broadened by ``ef_width_eV``.
     """
     from screener.bz.integrate import integrate
-    from screener.bz.kmesh import irreducible_mesh
+    from screener.bz.kmesh import check_mesh_size, irreducible_mesh
 
     periodic = tuple(bool(p) for p in model.periodic)
     mesh = tuple(int(m) if p else 1 for m, p in zip(mesh, periodic, strict=True))
+    check_mesh_size(mesh, model.n_orbitals, model.crystal.formula)
     kmesh = irreducible_mesh(model.crystal, mesh, use_symmetry=False)
     k = kmesh.kfrac
     vals, vecs = model.eigensystem(k)
