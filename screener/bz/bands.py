@@ -88,6 +88,9 @@ def band_structure(crystal: Crystal, params=None, *, kpoints=None, symprec: floa
         params = default_parameters(list(dict.fromkeys(crystal.species)))
     model = build_model(crystal, params, bonds=bonds)
     path = zone_route(crystal, symprec=symprec, kpoints=kpoints, periodic=model.periodic)
+    from screener.bz.kmesh import check_diagonalisation_work
+
+    check_diagonalisation_work(len(path.kfrac), model.n_orbitals, f"the band route of {crystal.formula}")
     with single_blas_thread():
         ground = solve_on_mesh(model, symprec=symprec)
         shells, member = orbital_groups(model)

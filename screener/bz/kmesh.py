@@ -47,6 +47,10 @@ def mesh_from_spacing(crystal: Crystal, k_step_per_A: float, periodic=(True, Tru
 #: limit one mesh of a 1-atom sp³ cell (62³ points × 4 orbitals) took about 300 MB and 2 s on a 2-core machine.
 #: The time also grows with orbitals³ per k-point, so a large cell is slower at the same product.
 MAX_ORBITAL_KPOINTS = 1_000_000
+#: Largest eigensolver work per mesh, (orbitals)³ × k-points: one complex Hermitian diagonalisation takes about
+#: 1-2 ns × n³ on one core (measured on this project's machines: 0.9 ns at n = 512, 2 ns at n = 64), so 1e11 is
+#: about two minutes for one mesh — beyond a screen's budget (common practice, no source).
+MAX_DIAGONALISATION_WORK = 1e11
 
 
 def orbital_kpoints(mesh, n_orbitals: int) -> int:
@@ -66,6 +70,19 @@ def check_mesh_size(mesh, n_orbitals: int, what: str = "the cell") -> None:
             f"the {'×'.join(str(int(m)) for m in mesh)} k-mesh of {what} ({points:.3g} points) × {int(n_orbitals)} "
             f"orbitals = {size:.3g}, more than the limit of {MAX_ORBITAL_KPOINTS:.0e} (orbitals × k-points); "
             "use a coarser --k-step or a smaller cell"
+        )
+    points = int(np.prod([int(m) for m in mesh], dtype=object))
+    check_diagonalisation_work(points, n_orbitals, f"the {'×'.join(str(int(m)) for m in mesh)} k-mesh of {what}")
+
+
+def check_diagonalisation_work(n_kpoints: int, n_orbitals: int, what: str) -> None:
+    """Refuse, before any work, n_kpoints diagonalisations of n_orbitals² matrices beyond MAX_DIAGONALISATION_WORK."""
+    work = float(n_orbitals) ** 3 * float(n_kpoints)
+    if work > MAX_DIAGONALISATION_WORK:
+        raise ParameterError(
+            f"{what} needs {int(n_kpoints)} diagonalisations of {int(n_orbitals)}-orbital matrices ({work:.2g} × n³ "
+            f"work, limit {MAX_DIAGONALISATION_WORK:.0e}, minutes to hours): use a smaller cell (its primitive "
+            "cell, or fewer atoms) or a coarser --k-step"
         )
 
 

@@ -56,7 +56,6 @@ class ScreenSettings:
     """Symmetry tolerance, Å."""
 
     def __post_init__(self):
-        import math
         from dataclasses import fields
 
         for f in fields(self):

@@ -77,3 +77,14 @@ def test_rank_with_a_tiny_k_step_is_refused_at_once(tmp_path, capsys):
     assert main(["rank", str(path), "--k-step", "1e-3", "--quiet"]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "orbitals" in err and "coarser --k-step" in err
+
+
+def test_diagonalisation_work_limit_refuses_large_cells_on_many_k_points():
+    # a 500-atom sp cell (2000 orbitals) along a 347-point band route: ~2.8e12 n³ of eigensolver work, hours;
+    # the 8-atom Bi cell of the recorded values (32 orbitals) on a 24³ mesh is far below (common practice, no source)
+    from screener.bz.kmesh import MAX_DIAGONALISATION_WORK, check_diagonalisation_work
+
+    with pytest.raises(ParameterError, match="2000-orbital matrices"):
+        check_diagonalisation_work(347, 2000, "the band route of As500")
+    check_diagonalisation_work(24**3, 32, "the mesh of Bi8")
+    assert 32**3 * 24**3 < MAX_DIAGONALISATION_WORK < 2000**3 * 347
