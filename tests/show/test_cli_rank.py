@@ -108,7 +108,7 @@ def test_generator_help_lists_the_generator_names(capsys):
         main(["rank", "--help"])
     text = " ".join(capsys.readouterr().out.split())  # argparse wraps the help lines
     assert f"--generator NAME candidate generator to run, one of {', '.join(GENERATORS)}" in text
-    assert GENERATORS == ("dimerise", "rhombohedral-split", "modulate")  # the names the README documents
+    assert GENERATORS == ("dimerise", "rhombohedral-split", "modulate", "soft-mode")  # the names the README documents
 
 
 def test_demo_writes_report_for_every_invented_structure(tmp_path, capsys):
