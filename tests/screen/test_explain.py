@@ -119,3 +119,19 @@ def test_cli_explain_bad_parent_is_one_line_error(tmp_path, capsys):
     code = main(["explain", "tests/data/As_A7_rhombohedral.cif", "--parent", str(bad)])
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 2 and len(err) == 1 and "bad.cif" in err[0]
+
+
+def test_a7_bismuth_explained():
+    # Cucka & Barrett, Acta Cryst. 15, 865 (1962) (from memory): a = 4.546, c = 11.862 Å, z = 0.23389, bonds 3.07
+    # and 3.53 Å; the A7 distortion of simple cubic is the Peierls split of the half-filled p bands (e.g. Burdett &
+    # Lee, J. Am. Chem. Soc. 105, 1079 (1983) — from memory)
+    r = explain(read_structure("tests/data/Bi_A7_hexagonal.cif"))
+    assert r.parent_symbol == "Pm-3m" and r.index == 8
+    short, long_ = r.bonds
+    assert (short["count_per_cell"], long_["count_per_cell"]) == (3, 3)
+    assert short["length_observed_A"] == pytest.approx(3.07, abs=0.01)
+    assert long_["length_observed_A"] == pytest.approx(3.53, abs=0.01)
+    # the bonds that shorten gain band energy, those that lengthen lose it
+    assert short["bond_energy_eV"]["observed"] < short["bond_energy_eV"]["parent"] < long_["bond_energy_eV"]["observed"]
+    assert r.path.optimum_lambda == pytest.approx(1.0, abs=0.5)
+    assert r.attribution == "band-driven"
