@@ -1,5 +1,7 @@
 """`explain`: is an observed distortion driven by the bands?"""
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -8,21 +10,8 @@ from screener.screen.explain import explain
 from screener.structure.crystal import Crystal
 from screener.tb.param_file import load_parameters
 
-# Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
-SSH_TOML = """
-[species.C]
-orbitals = ["pz"]
-onsite_eV = { pz = 0.0 }
-valence_electrons = 1
-
-[bond."C-C"]
-law = "linear"
-r0_A = 1.22
-V_eV = { pp_pi = -2.5 }
-slope_eV_per_A = { pp_pi = 4.1 }
-cutoff_A = 1.6
-spring_eV_per_A2 = 21.0
-"""
+# Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters (shared test data file)
+SSH_TOML = (Path(__file__).parents[1] / "data" / "params" / "ssh_polyacetylene.toml").read_text()
 
 
 def test_a7_arsenic_explained():
