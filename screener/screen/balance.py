@@ -119,6 +119,7 @@ class _Evaluator:
         self.members = [elastic_model_for(ref, params, self.bonds, a, m) for _, a, m in ensemble] or [self.elastic]
         self.n_atoms = ref.n_atoms
         self._build = build_model
+        self._member_rotations = None
 
     def _elastic_per_atom(self, el: ElasticModel, crystal: Crystal, shift: np.ndarray) -> float:
         """Elastic energy per atom of ``crystal`` (a family member whose atoms were wrapped by ``shift``)."""
@@ -140,7 +141,18 @@ class _Evaluator:
         # k-points may only be folded by symmetries the distorted structure really has: a tolerance above the
         # displacement would lend it the parent's symmetry
         symprec = self.settings.symprec_A if amplitude_A == 0 else min(self.settings.symprec_A, 0.1 * amplitude_A)
-        rotations = self.reference_rotations if amplitude_A == 0 and strain == 0 else None
+        if amplitude_A == 0 and strain == 0:
+            rotations = self.reference_rotations
+        elif strain == 0:
+            # every member at λ > 0 moves the atoms along the same pattern in the same cell, so they share one
+            # point group: found once (at the first such member) and reused for the others' meshes
+            if self._member_rotations is None:
+                from screener.structure.symmetry import analyse
+
+                self._member_rotations = analyse(crystal, symprec).rotations
+            rotations = self._member_rotations
+        else:
+            rotations = None
         res = solve_on_mesh(model, mesh, method=self.settings.method, width_eV=self.settings.width_eV,
                             symprec=symprec, rotations=rotations)
         return res.band_energy_eV / self.n_atoms, self._elastic_per_atom(self.elastic, crystal, shift), res
