@@ -176,3 +176,13 @@ def test_known_phases_read_without_doubts():
     for f in files:
         _, kinds = _read(f)
         assert kinds == [], f.name
+
+
+def test_short_contacts_are_flagged_in_json_files_too(tmp_path):
+    import json as _json
+
+    p = tmp_path / "close.json"
+    p.write_text(_json.dumps({"lattice_A": (4.0 * np.eye(3)).tolist(), "sites": [
+        {"element": "Si", "frac": [0, 0, 0]}, {"element": "Si", "frac": [0.3, 0, 0]}]}))
+    _, kinds = _read(p)
+    assert kinds == ["short_contact"]

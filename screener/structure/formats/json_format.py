@@ -42,7 +42,11 @@ def read(path: Path, *, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
         raise FormatError(f"file is not UTF-8 text (byte {exc.start}); expected JSON") from None
     except json.JSONDecodeError as exc:
         raise FormatError(f"not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}") from None
-    return from_dict(obj, min_distance_A=min_distance_A)
+    from screener.structure.neighbours import warn_short_contacts
+
+    crystal = from_dict(obj, min_distance_A=min_distance_A)
+    warn_short_contacts(crystal)
+    return crystal
 
 
 def from_dict(obj, *, min_distance_A: float = MIN_DISTANCE_A) -> Crystal:
