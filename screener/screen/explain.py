@@ -6,6 +6,11 @@ the observed atom order; the path r(λ) = r_parent + λ (r_observed − r_parent
 bonds of an alternated network both stay in the model. Band energy on one mesh for every λ; elastic energy from
 the parent's closure (`screen.parent.parent_energetics`, the same fit and uncertainty range as `rank`).
 
+Decomposition (issue 11, item 2; `project_on_generator_patterns`): the displacement observed − parent, uniform
+translation removed, split orthonormally on the parent's candidate patterns (the families of
+`screen.generators.default_candidates`, optionally the soft-mode patterns) with amplitudes in Å, plus the cell
+strain and the residual no pattern covers.
+
 Attribution (issue 11): ``band-driven`` when the total energy (bands + closure) at the observed structure lies
 below the parent's and the model's optimum along the path lies within 0.5–1.5 of the observed amplitude;
 ``band-assisted`` when the model gains along the path but its optimum lies elsewhere; ``not band-driven`` when
@@ -20,7 +25,7 @@ import numpy as np
 from scipy.linalg import polar
 from scipy.optimize import minimize_scalar
 
-from screener.errors import StructureError
+from screener.errors import ParameterError, StructureError
 from screener.structure.crystal import Crystal
 
 #: λ of the path: parent 0, observed 1, beyond to 1.5 (issue 11).
@@ -253,7 +258,7 @@ def decompose(parent: Crystal, observed: Crystal) -> tuple[tuple[tuple[str, floa
 #: Singular values below this (of orthonormal columns, so relative) mean a direction already covered.
 _RANK_TOL = 1e-6
 #: Largest distance, Å, between an observed atom moved back by a parent operation and a site of a family's cell.
-_SITE_TOL_A = 1e-3
+_SITE_TOL_A = 1e-2
 
 
 @dataclass(frozen=True, eq=False)
@@ -342,7 +347,8 @@ def _pattern_images(fam, prim: Crystal, rotations, translations, sites_frac, spe
     """Symmetry images of ``fam.pattern_A`` evaluated on the observed atoms, those periodic in the observed cell.
 
     ``sites_frac`` are the observed atoms' parent sites in fractions of ``prim`` (the cell the family was built
-    on). An operation g = (R, t) of the parent (x → R x + t) carries the pattern u to (g u)(x) = R u(g⁻¹ x);
+    on). An operation g = (R, t) of the parent (x → R x + t, with every lattice translation of the parent inside
+    the family's supercell added to t) carries the pattern u to (g u)(x) = R u(g⁻¹ x);
     u at a site is read off the family's reference cell (the site moved into that cell by a lattice vector of
     the family's supercell). An image is kept when it takes the same value at every atom moved by each observed
     lattice vector, i.e. when it lives on the observed cell. Returns (k, n, 3) Cartesian images, Å per unit.
@@ -355,29 +361,30 @@ def _pattern_images(fam, prim: Crystal, rotations, translations, sites_frac, spe
     shifts = np.vstack([np.zeros(3), cell_lattice_A @ np.linalg.inv(lp)])  # observed lattice vectors, prim frac
 
     def value_at(x_frac):
-        """pattern at parent sites given in prim fractions, (n, 3); None if a point is no site of the family."""
+        """pattern at parent sites given in prim fractions, (n, 3)."""
         d = (x_frac @ lp)[:, None, :] @ to_fam - ref.frac[None, :, :]
         d -= np.rint(d)
         dist = np.linalg.norm(d @ ref.lattice_A, axis=2)
         dist[np.array(species)[:, None] != ref_species[None, :]] = np.inf
         j = np.argmin(dist, axis=1)
         if np.max(dist[np.arange(len(j)), j]) > _SITE_TOL_A:
-            return None
+            raise ParameterError(f"the {fam.generator} family at q = {fam.q_label} was not built on the parent's "
+                                 "primitive cell: its sites are not the parent's")
         return fam.pattern_A[j]
 
+    from screener.structure.crystal import lattice_points_in_supercell
+
+    # the parent's lattice translations inside the family's supercell are operations too: they shift the wave's
+    # phase (a cosine wave's sine partner is its image under a translation)
+    lattice_t = lattice_points_in_supercell(fam.supercell_matrix)
     out = []
     for r, t in zip(rotations, translations, strict=True):
         r_inv = np.linalg.inv(r)
         r_cart = lt @ r @ lti  # acts on Cartesian columns
-        vals = []
-        for s in shifts:
-            y = (sites_frac + s - t) @ r_inv.T  # g⁻¹ x, rows
-            v = value_at(y)
-            if v is None:
-                break
-            vals.append(v @ r_cart.T)
-        if len(vals) == len(shifts) and all(np.allclose(v, vals[0], atol=1e-8) for v in vals[1:]):
-            out.append(vals[0])
+        for tt in t + lattice_t:
+            vals = [value_at((sites_frac + s - tt) @ r_inv.T) @ r_cart.T for s in shifts]  # R u(g⁻¹ x)
+            if all(np.allclose(v, vals[0], atol=1e-8) for v in vals[1:]):
+                out.append(vals[0])
     return np.array(out).reshape(-1, len(sites_frac), 3)
 
 
@@ -393,8 +400,9 @@ def project_on_generator_patterns(parent_cell: Crystal, observed: Crystal, famil
       atoms (a uniform translation: the origin is free) is removed.
     * Patterns: the families of `screen.generators.default_candidates` on the parent's primitive cell
       (dimerise, rhombohedral-split, modulate; with ``soft_modes`` also `generators.soft_modes`), or
-      ``families`` given. A family's pattern lives on its own supercell; every image of it under the parent's
-      space group is evaluated on the observed atoms and kept when it is periodic in the observed cell (a
+      ``families`` given (a list, or a function of the parent's `screen.parent.Parent` returning one, built on
+      that parent's primitive cell ``build_parent(parent_cell).crystal``). A family's pattern lives on its own supercell; every image of it under the parent's
+      space group (its lattice translations included) is evaluated on the observed atoms and kept when it is periodic in the observed cell (a
       structure may have picked any of the symmetry-equivalent variants, e.g. any body diagonal). The kept
       images, uniform translation removed, span the family's subspace. A family none of whose images is periodic
       in the observed cell (its supercell does not hold the observed cell) cannot contribute and is reported so.
@@ -425,7 +433,9 @@ def project_on_generator_patterns(parent_cell: Crystal, observed: Crystal, famil
     ctx = build_parent(parent_cell, params, settings)  # standardised primitive cell, same Cartesian frame
     prim = ctx.crystal
     notes = []
-    if families is None:
+    if callable(families):
+        families = list(families(ctx))
+    elif families is None:
         families = list(default_candidates(ctx, notes=notes))
         if soft_modes:
             families += find_soft_modes(ctx, notes=notes)
