@@ -159,3 +159,15 @@ def test_cli_explain_prints_the_decomposition(capsys):
     row = next(line for line in out.splitlines() if line.strip().startswith("rhombohedral-split"))
     assert row.split()[-1] == "100.0"
     assert "cannot contribute" in out and "cell strain" in out
+
+
+def test_soft_mode_patterns_of_a7_arsenic_add_nothing_after_the_split():
+    # the softest patterns of simple cubic As at q = (1/2, 1/2, 1/2) span the same body-diagonal zone-boundary
+    # displacements as the rhombohedral split (A7 as the R-point distortion of simple cubic: from memory), so
+    # listed after it they add no direction; one of their single variants alone carries the whole displacement
+    parent, observed = _a7_arsenic()
+    d = project_on_generator_patterns(parent, observed, soft_modes=True)
+    soft_r = [c for c in d.components if c.generator == "soft-mode" and c.q_label == "(1/2, 1/2, 1/2)"]
+    assert soft_r and all(c.new_directions == 0 and c.amplitude_A < 1e-9 for c in soft_r)
+    assert max(c.best_image_share for c in soft_r) > 0.999
+    assert any("soft-mode search" in s for s in d.notes)
