@@ -401,9 +401,10 @@ def project_on_generator_patterns(parent_cell: Crystal, observed: Crystal, famil
     * Patterns: the families of `screen.generators.default_candidates` on the parent's primitive cell
       (dimerise, rhombohedral-split, modulate; with ``soft_modes`` also `generators.soft_modes`), or
       ``families`` given (a list, or a function of the parent's `screen.parent.Parent` returning one, built on
-      that parent's primitive cell ``build_parent(parent_cell).crystal``). A family's pattern lives on its own supercell; every image of it under the parent's
-      space group (its lattice translations included) is evaluated on the observed atoms and kept when it is periodic in the observed cell (a
-      structure may have picked any of the symmetry-equivalent variants, e.g. any body diagonal). The kept
+      that parent's primitive cell ``build_parent(parent_cell).crystal``). A family's pattern lives on its own
+      supercell; every image of it under the parent's space group (its lattice translations included) is
+      evaluated on the observed atoms and kept when it is periodic in the observed cell (a structure may have
+      picked any of the symmetry-equivalent variants, e.g. any body diagonal). The kept
       images, uniform translation removed, span the family's subspace. A family none of whose images is periodic
       in the observed cell (its supercell does not hold the observed cell) cannot contribute and is reported so.
     * Orthonormalisation: block Gram–Schmidt in the order of the family list: each family keeps only the
