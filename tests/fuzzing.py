@@ -30,10 +30,12 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 STRUCTURE_SEEDS = sorted([*(ROOT / "tests" / "data").glob("*.cif"), *(ROOT / "tests" / "data" / "known_phases").glob(
     "*.cif"), *(ROOT / "demo_structures").glob("*.cif")])
-PARAM_SEEDS = sorted((ROOT / "tests" / "data" / "params").glob("*.toml"))
 #: structure the parameter mutants are applied to (a one-atom chain: fast), per parameter seed's stem prefix
 PARAM_STRUCTURES = {"chain": ROOT / "demo_structures" / "Sb_linear_chain.cif",
                     "sp": ROOT / "tests" / "data" / "known_phases" / "Si_diamond.cif"}
+#: parameter seed files: those whose stem prefix names a structure above (other test parameter files are not seeds)
+PARAM_SEEDS = sorted(p for p in (ROOT / "tests" / "data" / "params").glob("*.toml")
+                     if p.stem.split("_")[0] in PARAM_STRUCTURES)
 
 DEFAULT_SEED = 20261202
 

@@ -238,16 +238,18 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     thr, tol = settings.threshold_meV_per_atom, settings.stable_tolerance_meV_per_atom
     note = []
 
-    def member_totals(m, upto=np.inf, alt_near=None):
+    def member_totals(m, upto=np.inf, alt_near=None, own_near=None):
         """(n_members, n_amplitudes) ΔE of every closure member along the scan amplitudes on mesh m, meV/atom:
         the closure's range with the parent's hoppings, then (if any) with the other universal set. With
-        ``alt_near`` (amplitude indices) the other set is only evaluated there (NaN elsewhere)."""
+        ``alt_near`` / ``own_near`` (amplitude indices, 0 among them) the other / own set is only evaluated there
+        (NaN elsewhere)."""
         xs = lams[lams <= upto + 1e-12]
         rows = []
         for evaluator, energy in ((ev, e_at), (ev_alt, e_alt)):
             if evaluator is None:
                 continue
-            use = np.arange(len(xs)) if evaluator is ev or alt_near is None else np.array(sorted(alt_near))
+            near = own_near if evaluator is ev else alt_near
+            use = np.arange(len(xs)) if near is None else np.array(sorted(near))
             use = use[use < len(xs)]
             b = np.array([energy(xs[i], m)[0] for i in use])
             el = np.array([evaluator.member_elastic(xs[i], energy(xs[i], m)[3]) for i in use])
@@ -328,12 +330,37 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         for row in coarse_members[n_own:]:
             j = int(np.argmin(row))
             near |= {max(j - 1, 0), j, j + 1}
-        xs, fine = member_totals(mesh, upto=min(lam_max, 2 * lam_ref + 2 * step), alt_near=near)
+        # the parent's own closure members too only around their coarse optima (each member's minimum and its
+        # neighbours, widened while a member's lowest point on this mesh lies at the edge of what was evaluated):
+        # the same minima as evaluating every amplitude, for a fraction of the final-mesh diagonalisations
+        own = {0}
+        for row in coarse_members[:n_own]:
+            j = int(np.argmin(row))
+            own |= {max(j - 1, 0), j, j + 1}
+        upto = min(lam_max, 2 * lam_ref + 2 * step)
+        n_x = int(np.count_nonzero(lams <= upto + 1e-12))
+
+        def edges(rows, window):
+            """Neighbours of each row's lowest evaluated point that were not evaluated yet."""
+            out = set()
+            for row in rows:
+                j = int(np.nanargmin(row))
+                out |= {i for i in (j - 1, j + 1) if 0 <= i < n_x and i not in window}
+            return out
+
+        own, near = {i for i in own if i < n_x}, {i for i in near if i < n_x}
+        while True:
+            xs, fine = member_totals(mesh, upto=upto, alt_near=near, own_near=own)
+            add_own = edges(fine[:n_own], own)
+            if not add_own:
+                break
+            own |= add_own
     else:
         xs, fine = lams, coarse_members
         if lam_ref > 0:
             note.append("closure range evaluated on the scan mesh (relaxed cell)")
     nominal_row = len(parent.ensemble) // 2
+    done = np.isfinite(fine[nominal_row])
     member_dE = np.minimum([_parabola_minimum(xs, row) for row in fine], 0.0)
     member_dE[nominal_row] = delta_total  # the nominal member, polished above
     d_lo, d_hi = float(member_dE.min()), float(member_dE.max())
@@ -389,10 +416,11 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         distorting_fraction=distorting,
         member_delta_E_meV_per_atom=tuple(float(x) for x in member_dE),
         kmesh_error_meV_per_atom=float(residual),
-        curve_amplitude_A=tuple(float(x) for x in xs),
-        curve_delta_E_meV_per_atom=tuple(float(x) for x in fine[nominal_row]),
-        curve_range_meV_per_atom=(tuple(float(x) for x in np.nanmin(fine, axis=0)),
-                                  tuple(float(x) for x in np.nanmax(fine, axis=0))),
+        # the curve on the verdict's mesh: the amplitudes where the nominal member was evaluated
+        curve_amplitude_A=tuple(float(x) for x in xs[done]),
+        curve_delta_E_meV_per_atom=tuple(float(x) for x in fine[nominal_row][done]),
+        curve_range_meV_per_atom=(tuple(float(x) for x in np.nanmin(fine[:, done], axis=0)),
+                                  tuple(float(x) for x in np.nanmax(fine[:, done], axis=0))),
         curve_kmesh=tuple(int(x) for x in (mesh if xs is not lams else coarse_mesh)),
         cell_strain=float(strain_opt),
         structure=crystal_opt,

@@ -493,36 +493,52 @@ def project_on_generator_patterns(parent_cell: Crystal, observed: Crystal, famil
 
 
 def bond_table(context, observed: Crystal, mesh) -> tuple[dict, ...]:
-    """Per distinct bond (element pair, length in parent, length observed): count and band-energy shares."""
+    """Per symmetry-distinct bond: count and band-energy shares in the parent and the observed structure.
+
+    Bonds are grouped by their true symmetry orbits — of the parent's space group at λ = 0 and of the observed
+    structure's at λ = 1 (bonds following the atoms) — so a row is one orbit of the observed structure inside one
+    orbit of the parent. The parent's numbers are averaged over its whole orbit: bonds equivalent in the parent get
+    the same share even where the supercell's k-mesh is less symmetric than the parent.
+    """
     from screener.screen.generators import follow_bonds
-    from screener.tb.bond_energy import bond_energies
-    from screener.tb.bonds import BondList
+    from screener.structure.symmetry import analyse
+    from screener.tb.bond_energy import NONBONDING_PER_EV, bond_energies
+    from screener.tb.bonds import BondList, bond_orbits
     from screener.tb.model import build_model
 
     parent = context.crystal
-    out = {}
-    res = []
+    symprec = context.settings.symprec_A
+    res, orbits = [], []
     for lam in (0.0, 1.0):
         c, shift = _interpolate(parent, observed, lam)
         b = context.bonds
         bonds = BondList(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
         res.append(bond_energies(build_model(c, context.params, bonds=bonds), mesh))
+        sym = analyse(c, symprec)
+        orbits.append(bond_orbits(c, bonds.i, bonds.j, bonds.image, sym.rotations, sym.translations))
+
+    def character(pop):
+        return "non-bonding" if abs(pop) < NONBONDING_PER_EV else ("antibonding" if pop > 0 else "bonding")
+
     b = context.bonds
+    groups: dict[tuple[int, int], list[int]] = {}
     for k in range(len(b)):
-        pair = "-".join(sorted((parent.species[b.i[k]], parent.species[b.j[k]])))
-        key = (pair, round(float(res[0].bond_length_A[k]), 3), round(float(res[1].bond_length_A[k]), 3))
-        out.setdefault(key, []).append(k)
+        groups.setdefault((int(orbits[0][k]), int(orbits[1][k])), []).append(k)
     table = []
-    for (pair, d0, d1), ks in sorted(out.items(), key=lambda kv: kv[0][2]):
+    for (o_parent, _), ks in sorted(groups.items(), key=lambda kv: float(np.mean(res[1].bond_length_A[kv[1]]))):
+        whole = np.flatnonzero(orbits[0] == o_parent)  # the parent's whole orbit of these bonds
         k0 = ks[0]
+        pair = "-".join(sorted((parent.species[b.i[k0]], parent.species[b.j[k0]])))
+        pop_parent = float(np.mean(res[0].bond_population_at_EF_per_eV[whole]))
+        pop_obs = float(np.mean(res[1].bond_population_at_EF_per_eV[ks]))
         table.append({
-            "pair": pair, "count_per_cell": len(ks), "length_parent_A": d0, "length_observed_A": d1,
-            "bond_energy_eV": {"parent": float(np.mean(res[0].bond_energy_eV[ks])),
+            "pair": pair, "count_per_cell": len(ks),
+            "length_parent_A": round(float(np.mean(res[0].bond_length_A[whole])), 3),
+            "length_observed_A": round(float(np.mean(res[1].bond_length_A[ks])), 3),
+            "bond_energy_eV": {"parent": float(np.mean(res[0].bond_energy_eV[whole])),
                                "observed": float(np.mean(res[1].bond_energy_eV[ks]))},
-            "bond_character_at_EF": {"parent": res[0].bond_character_at_EF[k0],
-                                     "observed": res[1].bond_character_at_EF[k0]},
-            "bond_population_at_EF_per_eV": {"parent": float(np.mean(res[0].bond_population_at_EF_per_eV[ks])),
-                                             "observed": float(np.mean(res[1].bond_population_at_EF_per_eV[ks]))},
+            "bond_character_at_EF": {"parent": character(pop_parent), "observed": character(pop_obs)},
+            "bond_population_at_EF_per_eV": {"parent": pop_parent, "observed": pop_obs},
         })
     return tuple(table)
 

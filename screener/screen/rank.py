@@ -244,7 +244,7 @@ def _check_mesh_sizes(families, context, settings: ScreenSettings) -> None:
 
 
 def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings: ScreenSettings | None = None,
-         progress: bool = True, relax_cell: bool = False) -> RankResult:
+         progress: bool = True, relax_cell: bool = False, n_electrons: float | None = None) -> RankResult:
     """Generate the candidate distortions of ``crystal``, evaluate each and rank them.
 
     Parameters
@@ -256,8 +256,17 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     settings : numerical settings (ScreenSettings()).
     progress : show a progress bar on stderr when the work takes more than a second.
     relax_cell : relax the rhombohedral angle together with the rhombohedral split (slower).
+    n_electrons : valence electrons per primitive cell of the parent (default: the neutral atoms' count), filling
+        the same bands rigidly in the parent and in every candidate (the closure is fitted at this filling).
     """
     context = build_parent(crystal, params, settings)
+    if n_electrons is not None:
+        from dataclasses import replace
+
+        n_prim = context.crystal.n_atoms
+        base = float(sum(context.params.species(s).valence_electrons for s in context.crystal.species))
+        shift = (float(n_electrons) - base) / n_prim + context.params.extra_electrons_per_atom
+        context = build_parent(crystal, replace(context.params, extra_electrons_per_atom=shift), settings)
     settings, params, sym = context.settings, context.params, context.symmetry
     # --q is given in the input's reciprocal basis; the candidates live on the standardised primitive cell
     m = context.primitive.supercell_matrix

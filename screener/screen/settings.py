@@ -60,7 +60,9 @@ class ScreenSettings:
 
         for f in fields(self):
             v = getattr(self, f.name)
-            if isinstance(v, bool) or not isinstance(v, (int, float)):
+            if f.name == "max_supercell_atoms":
+                continue  # its own check below (a whole number)
+            if isinstance(v, bool) or not isinstance(v, numbers.Real):
                 if f.name in ("method", "closure") or (f.name == "bulk_modulus_GPa" and v is None):
                     continue
                 raise ParameterError(f"{f.name} must be a number, got {v!r}")

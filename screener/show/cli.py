@@ -297,7 +297,7 @@ def cmd_rank(args) -> int:
     params = _parameters_for(crystal, args.params)
     q_extra = [_parse_q(q) for q in (args.q or [])]
     result = rank(crystal, params, generators=args.generator, extra_q=q_extra, settings=_screen_settings(args),
-                  progress=not args.json and not args.quiet, relax_cell=args.relax_cell)
+                  progress=not args.json and not args.quiet, relax_cell=args.relax_cell, n_electrons=args.electrons)
     if args.csv:
         _write_atomically(args.csv, result.table().to_csv(index=False))
     written = write_optimum_structures(result, args.write_structures) if args.write_structures else []
@@ -512,6 +512,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--csv", help="also write the ranked table to this CSV file")
     p.add_argument("--write-structures", help="write each optimum as CIF into this folder")
+    p.add_argument("--electrons", type=_finite_float, default=None,
+                   help="valence electrons per primitive cell of the parent (default: the neutral atoms' count); "
+                        "fills the same bands rigidly, e.g. to see a doped or hypothetical filling")
     _add_rank_options(p)
     p.set_defaults(func=cmd_rank)
 

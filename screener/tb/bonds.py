@@ -182,3 +182,51 @@ def find_bonds(crystal: Crystal, params: ParameterSet | None = None, *,
     return BondList(i, j, image, vec)
 
 
+
+
+def bond_orbits(crystal: Crystal, i, j, image, rotations, translations, tol: float = 1e-4) -> np.ndarray:
+    """(p,) int orbit label of each bond (i, j, image) under the space-group operations (R, t) of ``crystal``
+    (fractional, x → R x + t): two bonds share a label when an operation maps one onto the other or onto its
+    reverse. Bonds an operation maps outside the list keep their own label (a list that is not closed)."""
+    frac = np.asarray(crystal.frac, dtype=float)
+    i, j = np.asarray(i, dtype=int), np.asarray(j, dtype=int)
+    image = np.asarray(image, dtype=int).reshape(-1, 3)
+    p = len(i)
+    vec = frac[j] + image - frac[i]  # bond vectors, lattice coordinates
+    # bond lookup: (i, j, image) and the reverse (j, i, -image) both name the same bond
+    key = {}
+    for k in range(p):
+        key[(int(i[k]), int(j[k]), *map(int, image[k]))] = k
+        key[(int(j[k]), int(i[k]), *map(int, -image[k]))] = k
+    parent = np.arange(p)
+
+    def find(a):
+        while parent[a] != a:
+            parent[a] = parent[parent[a]]
+            a = parent[a]
+        return a
+
+    for rot, t in zip(np.asarray(rotations), np.asarray(translations), strict=True):
+        moved = frac @ rot.T + t
+        # atom s goes to the atom at moved[s] (modulo lattice translations), with lattice shift `shift`
+        diff = moved[:, None, :] - frac[None, :, :]
+        match = np.all(np.abs(diff - np.round(diff)) < tol, axis=2)
+        if not np.all(match.sum(axis=1) == 1):
+            continue  # not an operation of this crystal at this tolerance
+        to = np.argmax(match, axis=1)
+        new_i = to[i]
+        start = moved[i] - frac[new_i]  # integer: where the image of atom i lands
+        end = start + vec @ rot.T + frac[new_i]
+        d = end[:, None, :] - frac[None, :, :]
+        hit = np.all(np.abs(d - np.round(d)) < tol, axis=2)
+        new_j = np.argmax(hit, axis=1)
+        new_img = np.round(end - frac[new_j] - np.round(start)).astype(int)
+        for k in range(p):
+            m = key.get((int(new_i[k]), int(new_j[k]), *map(int, new_img[k])))
+            if m is not None:
+                a, b = find(k), find(m)
+                if a != b:
+                    parent[max(a, b)] = min(a, b)
+    roots = np.array([find(k) for k in range(p)])
+    _, labels = np.unique(roots, return_inverse=True)
+    return labels

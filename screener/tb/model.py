@@ -168,7 +168,11 @@ def build_model(crystal: Crystal, params: ParameterSet | None = None, *, bonds: 
     norb = int(counts.sum())
     site = np.repeat(np.arange(n), counts)
     names = tuple(o for s in sp for o in s.orbitals)
-    n_electrons = float(sum(s.valence_electrons for s in sp))
+    n_electrons = float(sum(s.valence_electrons for s in sp)) + float(params.extra_electrons_per_atom) * n
+    capacity = 2 * norb  # spatial orbitals here, two spin states each (with or without spin–orbit coupling)
+    if not 0 <= n_electrons <= capacity + 1e-9:
+        raise ParameterError(f"{n_electrons:g} electrons do not fit in the {capacity} states of the {norb} orbitals of "
+                             f"{crystal.formula} (with spin): choose a filling between 0 and {capacity}")
 
     # R = 0 block: on-site energies
     translations = [np.zeros(3, dtype=int)]

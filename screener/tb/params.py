@@ -176,6 +176,9 @@ class ParameterSet:
     """Harrison coefficient set used for default bonds."""
     source: str = ""
     """Notes on where the parameters come from."""
+    extra_electrons_per_atom: float = 0.0
+    """Electrons added to (negative: removed from) the neutral atoms' valence count, per atom of any cell built
+    with these parameters: a rigid filling of the same bands (``rank --electrons``)."""
 
     @property
     def elements(self) -> tuple[str, ...]:

@@ -1,5 +1,7 @@
 """The energy comparator and ranked verdicts against published models and theorems."""
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -19,20 +21,9 @@ from screener.tb.param_file import load_parameters
 from screener.tb.params import default_parameters
 
 # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
-SSH_TOML = """
-[species.C]
-orbitals = ["pz"]
-onsite_eV = {{ pz = 0.0 }}
-valence_electrons = {electrons}
-
-[bond."C-C"]
-law = "linear"
-r0_A = 1.22
-V_eV = {{ pp_pi = -2.5 }}
-slope_eV_per_A = {{ pp_pi = 4.1 }}
-cutoff_A = 1.6
-spring_eV_per_A2 = 21.0
-"""
+# the SSH chain of the shared test data file, with a variable electron count
+SSH_TOML = (Path(__file__).parents[1] / "data" / "params" / "ssh_polyacetylene.toml").read_text().replace(
+    "{", "{{").replace("}", "}}").replace("valence_electrons = 1", "valence_electrons = {electrons}")
 
 
 def ssh_chain():

@@ -1,5 +1,7 @@
 """`explain`: is an observed distortion driven by the bands?"""
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -8,21 +10,8 @@ from screener.screen.explain import explain
 from screener.structure.crystal import Crystal
 from screener.tb.param_file import load_parameters
 
-# Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
-SSH_TOML = """
-[species.C]
-orbitals = ["pz"]
-onsite_eV = { pz = 0.0 }
-valence_electrons = 1
-
-[bond."C-C"]
-law = "linear"
-r0_A = 1.22
-V_eV = { pp_pi = -2.5 }
-slope_eV_per_A = { pp_pi = 4.1 }
-cutoff_A = 1.6
-spring_eV_per_A2 = 21.0
-"""
+# Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters (shared test data file)
+SSH_TOML = (Path(__file__).parents[1] / "data" / "params" / "ssh_polyacetylene.toml").read_text()
 
 
 def test_a7_arsenic_explained():
@@ -36,6 +25,10 @@ def test_a7_arsenic_explained():
     short, long_ = r.bonds
     assert short["bond_energy_eV"]["observed"] < short["bond_energy_eV"]["parent"]
     assert long_["bond_energy_eV"]["observed"] > long_["bond_energy_eV"]["parent"]
+    # in the cubic parent all six bonds are one orbit: the same share and character, whatever the k-mesh
+    assert short["bond_energy_eV"]["parent"] == pytest.approx(long_["bond_energy_eV"]["parent"], abs=1e-12)
+    assert short["length_parent_A"] == long_["length_parent_A"]
+    assert short["bond_character_at_EF"]["parent"] == long_["bond_character_at_EF"]["parent"]
     # the model (not tuned) puts the optimum within 0.5-1.5 of the observed distortion: band-driven
     assert 0.5 <= r.path.optimum_lambda <= 1.5
     assert r.attribution == "band-driven"
@@ -115,3 +108,19 @@ def test_cli_explain_bad_parent_is_one_line_error(tmp_path, capsys):
     code = main(["explain", "tests/data/As_A7_rhombohedral.cif", "--parent", str(bad)])
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 2 and len(err) == 1 and "bad.cif" in err[0]
+
+
+def test_a7_bismuth_explained():
+    # Cucka & Barrett, Acta Cryst. 15, 865 (1962) (from memory): a = 4.546, c = 11.862 Å, z = 0.23389, bonds 3.07
+    # and 3.53 Å; the A7 distortion of simple cubic is the Peierls split of the half-filled p bands (e.g. Burdett &
+    # Lee, J. Am. Chem. Soc. 105, 1079 (1983) — from memory)
+    r = explain(read_structure("tests/data/Bi_A7_hexagonal.cif"))
+    assert r.parent_symbol == "Pm-3m" and r.index == 8
+    short, long_ = r.bonds
+    assert (short["count_per_cell"], long_["count_per_cell"]) == (3, 3)
+    assert short["length_observed_A"] == pytest.approx(3.07, abs=0.01)
+    assert long_["length_observed_A"] == pytest.approx(3.53, abs=0.01)
+    # the bonds that shorten gain band energy, those that lengthen lose it
+    assert short["bond_energy_eV"]["observed"] < short["bond_energy_eV"]["parent"] < long_["bond_energy_eV"]["observed"]
+    assert r.path.optimum_lambda == pytest.approx(1.0, abs=0.5)
+    assert r.attribution == "band-driven"

@@ -1,6 +1,7 @@
 """`screener rank` and `screener demo` through the command line."""
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -18,19 +19,7 @@ REQUIRED_CANDIDATE_KEYS = {
 }
 
 # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): t0 = 2.5 eV, α = 4.1 eV/Å, K = 21 eV/Å², a = 1.22 Å
-SSH_TOML = """
-[species.C]
-orbitals = ["pz"]
-onsite_eV = { pz = 0.0 }
-valence_electrons = 1
-[bond."C-C"]
-law = "linear"
-r0_A = 1.22
-V_eV = { pp_pi = -2.5 }
-slope_eV_per_A = { pp_pi = 4.1 }
-cutoff_A = 1.6
-spring_eV_per_A2 = 21.0
-"""
+SSH_TOML = (Path(__file__).parents[1] / "data" / "params" / "ssh_polyacetylene.toml").read_text()
 
 
 @pytest.fixture
@@ -108,7 +97,7 @@ def test_generator_help_lists_the_generator_names(capsys):
         main(["rank", "--help"])
     text = " ".join(capsys.readouterr().out.split())  # argparse wraps the help lines
     assert f"--generator NAME candidate generator to run, one of {', '.join(GENERATORS)}" in text
-    assert GENERATORS == ("dimerise", "rhombohedral-split", "modulate")  # the names the README documents
+    assert GENERATORS == ("dimerise", "rhombohedral-split", "modulate", "soft-mode")  # the names the README documents
 
 
 def test_demo_writes_report_for_every_invented_structure(tmp_path, capsys):

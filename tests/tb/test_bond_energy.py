@@ -1,5 +1,7 @@
 """Each bond's share of the band energy (bond-resolved Hamilton population)."""
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -11,19 +13,7 @@ from screener.tb.model import build_model
 from screener.tb.param_file import load_parameters
 
 # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters (t0 = 2.5 eV at 1.22 A)
-CHAIN_TOML = """
-[species.C]
-orbitals = ["pz"]
-onsite_eV = { pz = 0.0 }
-valence_electrons = 1
-
-[bond."C-C"]
-law = "linear"
-r0_A = 1.22
-V_eV = { pp_pi = -2.5 }
-slope_eV_per_A = { pp_pi = 4.1 }
-cutoff_A = 1.6
-"""
+CHAIN_TOML = (Path(__file__).parents[1] / "data" / "params" / "ssh_polyacetylene.toml").read_text()
 
 
 def chain_model(tmp_path, u_A=0.0):
