@@ -6,6 +6,11 @@ the observed atom order; the path r(λ) = r_parent + λ (r_observed − r_parent
 bonds of an alternated network both stay in the model. Band energy on one mesh for every λ; elastic energy from
 the parent's closure (`screen.parent.parent_energetics`, the same fit and uncertainty range as `rank`).
 
+Decomposition (issue 11, item 2; `project_on_generator_patterns`): the displacement observed − parent, uniform
+translation removed, split orthonormally on the parent's candidate patterns (the families of
+`screen.generators.default_candidates`, optionally the soft-mode patterns) with amplitudes in Å, plus the cell
+strain and the residual no pattern covers.
+
 Attribution (issue 11): ``band-driven`` when the total energy (bands + closure) at the observed structure lies
 below the parent's and the model's optimum along the path lies within 0.5–1.5 of the observed amplitude;
 ``band-assisted`` when the model gains along the path but its optimum lies elsewhere; ``not band-driven`` when
@@ -20,7 +25,7 @@ import numpy as np
 from scipy.linalg import polar
 from scipy.optimize import minimize_scalar
 
-from screener.errors import StructureError
+from screener.errors import ParameterError, StructureError
 from screener.structure.crystal import Crystal
 
 #: λ of the path: parent 0, observed 1, beyond to 1.5 (issue 11).
@@ -83,6 +88,8 @@ class ExplainResult:
     """Attribution under each member of the closure's range."""
     reasons: tuple[str, ...] = ()
     """Why, in words."""
+    decomposition: Decomposition | None = None
+    """The displacement split on the parent's candidate patterns (`project_on_generator_patterns`)."""
 
     def as_dict(self) -> dict:
         """JSON-ready dictionary (keys of the `screener explain --json` output)."""
@@ -103,6 +110,7 @@ class ExplainResult:
             "attribution": self.attribution,
             "member_attributions": list(self.member_attributions),
             "reasons": list(self.reasons),
+            **({"decomposition": self.decomposition.as_dict()} if self.decomposition is not None else {}),
         }
 
 
@@ -247,10 +255,241 @@ def decompose(parent: Crystal, observed: Crystal) -> tuple[tuple[tuple[str, floa
     return tuple(modes), u - np.eye(3)
 
 
-def project_on_generator_patterns(*args, **kwargs):
-    """Projection of the displacement on the candidate generators' and soft-mode patterns (issue 11, item 2)."""
-    raise NotImplementedError("projection on the candidate generators' and soft-mode patterns is not written yet; "
-                              "`decompose` splits the displacement by parent site orbits instead")
+#: Singular values below this (of orthonormal columns, so relative) mean a direction already covered.
+_RANK_TOL = 1e-6
+#: Largest distance, Å, between an observed atom moved back by a parent operation and a site of a family's cell.
+_SITE_TOL_A = 1e-2
+
+
+@dataclass(frozen=True, eq=False)
+class PatternComponent:
+    """One family's part of the displacement observed − parent (see `project_on_generator_patterns`)."""
+
+    generator: str
+    """Generator of the family ('dimerise', 'rhombohedral-split', 'modulate', 'soft-mode')."""
+    description: str
+    """The family's own one-line description."""
+    q_label: str
+    """Its wave-vector in the parent's reciprocal basis."""
+    supercell_matrix: tuple
+    """Its supercell, rows in the parent's primitive basis."""
+    commensurate: bool
+    """Whether some symmetry image of the pattern is periodic in the observed cell (else it cannot contribute)."""
+    images: int = 0
+    """Independent symmetry images of the pattern periodic in the observed cell (dimension of its subspace)."""
+    new_directions: int = 0
+    """Of those, directions not already spanned by the families before it in the list."""
+    amplitude_A: float = 0.0
+    """Norm of the displacement's component on the orthonormalised directions, Å (see module function)."""
+    raw_amplitude_A: float = 0.0
+    """Norm of the projection on the family's own subspace before orthonormalisation, Å."""
+    max_displacement_A: float = 0.0
+    """Largest atomic displacement of the orthonormalised component, Å (the generators' λ convention)."""
+    share: float = 0.0
+    """amplitude² / |displacement|²: the fraction of the squared displacement this family carries."""
+    best_image_share: float = 0.0
+    """The largest (image · d)² / (|image|² |d|²) over the single images: how much one variant carries alone."""
+    note: str = ""
+    """Why the family cannot contribute, when it cannot."""
+
+
+@dataclass(frozen=True, eq=False)
+class Decomposition:
+    """Orthonormal split of the displacement observed − parent on the parent's patterns, plus strain."""
+
+    components: tuple[PatternComponent, ...]
+    """Every family, in the order of the list (Gram–Schmidt order); incommensurate ones with amplitude 0."""
+    displacement_A: float
+    """Norm of the whole displacement (uniform translation removed), Å."""
+    residual_A: float
+    """Norm of what no pattern covers, Å."""
+    residual_share: float
+    """residual² / |displacement|²."""
+    overlap: np.ndarray
+    """(F, F) largest cosine between the raw (not orthonormalised) subspaces of the commensurate families."""
+    overlap_labels: tuple[str, ...]
+    """Row/column labels of ``overlap``."""
+    strain: np.ndarray
+    """(3, 3) symmetric cell strain ε = U − 1 observed relative to parent."""
+    notes: tuple[str, ...] = ()
+    """What was left out and why."""
+
+    def as_dict(self) -> dict:
+        """JSON-ready dictionary (the `decomposition` key of `screener explain --json`)."""
+        w = np.linalg.eigvalsh(np.asarray(self.strain))
+        return {
+            "amplitude_definition": "norm over the atoms of the observed primitive cell of the displacement "
+                                    "component, sqrt(sum_i |u_i|^2), Å; share = amplitude^2 / |displacement|^2",
+            "displacement_A": round(self.displacement_A, 6),
+            "patterns": [{
+                "generator": c.generator, "description": c.description, "q": c.q_label,
+                "supercell_matrix": [list(map(int, r)) for r in c.supercell_matrix],
+                "commensurate": c.commensurate, "images": c.images, "new_directions": c.new_directions,
+                "amplitude_A": round(c.amplitude_A, 6), "raw_amplitude_A": round(c.raw_amplitude_A, 6),
+                "max_displacement_A": round(c.max_displacement_A, 6), "share": round(c.share, 6),
+                "best_image_share": round(c.best_image_share, 6),
+                **({"note": c.note} if c.note else {}),
+            } for c in self.components],
+            "residual_A": round(self.residual_A, 6),
+            "residual_share": round(self.residual_share, 6),
+            "overlap": {"labels": list(self.overlap_labels), "largest_cosine": np.round(self.overlap, 6).tolist()},
+            "strain": {"tensor": np.round(self.strain, 6).tolist(), "principal": np.round(w, 6).tolist(),
+                       "volume": round(float(np.linalg.det(np.eye(3) + self.strain) - 1), 6)},
+            "notes": list(self.notes),
+        }
+
+
+def _family_label(f) -> str:
+    return f"{f.generator} q={f.q_label}"
+
+
+def _pattern_images(fam, prim: Crystal, rotations, translations, sites_frac, species, cell_lattice_A):
+    """Symmetry images of ``fam.pattern_A`` evaluated on the observed atoms, those periodic in the observed cell.
+
+    ``sites_frac`` are the observed atoms' parent sites in fractions of ``prim`` (the cell the family was built
+    on). An operation g = (R, t) of the parent (x → R x + t, with every lattice translation of the parent inside
+    the family's supercell added to t) carries the pattern u to (g u)(x) = R u(g⁻¹ x);
+    u at a site is read off the family's reference cell (the site moved into that cell by a lattice vector of
+    the family's supercell). An image is kept when it takes the same value at every atom moved by each observed
+    lattice vector, i.e. when it lives on the observed cell. Returns (k, n, 3) Cartesian images, Å per unit.
+    """
+    ref = fam.reference
+    lp = prim.lattice_A
+    to_fam = np.linalg.inv(ref.lattice_A)
+    ref_species = np.array(ref.species)
+    lt, lti = lp.T, np.linalg.inv(lp.T)
+    shifts = np.vstack([np.zeros(3), cell_lattice_A @ np.linalg.inv(lp)])  # observed lattice vectors, prim frac
+
+    def value_at(x_frac):
+        """pattern at parent sites given in prim fractions, (n, 3)."""
+        d = (x_frac @ lp)[:, None, :] @ to_fam - ref.frac[None, :, :]
+        d -= np.rint(d)
+        dist = np.linalg.norm(d @ ref.lattice_A, axis=2)
+        dist[np.array(species)[:, None] != ref_species[None, :]] = np.inf
+        j = np.argmin(dist, axis=1)
+        if np.max(dist[np.arange(len(j)), j]) > _SITE_TOL_A:
+            raise ParameterError(f"the {fam.generator} family at q = {fam.q_label} was not built on the parent's "
+                                 "primitive cell: its sites are not the parent's")
+        return fam.pattern_A[j]
+
+    from screener.structure.crystal import lattice_points_in_supercell
+
+    # the parent's lattice translations inside the family's supercell are operations too: they shift the wave's
+    # phase (a cosine wave's sine partner is its image under a translation)
+    lattice_t = lattice_points_in_supercell(fam.supercell_matrix)
+    out = []
+    for r, t in zip(rotations, translations, strict=True):
+        r_inv = np.linalg.inv(r)
+        r_cart = lt @ r @ lti  # acts on Cartesian columns
+        for tt in t + lattice_t:
+            vals = [value_at((sites_frac + s - tt) @ r_inv.T) @ r_cart.T for s in shifts]  # R u(g⁻¹ x)
+            if all(np.allclose(v, vals[0], atol=1e-8) for v in vals[1:]):
+                out.append(vals[0])
+    return np.array(out).reshape(-1, len(sites_frac), 3)
+
+
+def project_on_generator_patterns(parent_cell: Crystal, observed: Crystal, families=None, soft_modes: bool = False,
+                                  params=None, settings=None) -> Decomposition:
+    """Split the displacement observed − parent into the parent's candidate patterns, orthonormally, in Å.
+
+    ``parent_cell`` is the parent written in the observed cell with the observed atom order (as `explain` and
+    `structure.idealise` give it), so the observed cell is a supercell of the parent's primitive cell.
+
+    * Displacement: d_i = (x_i(observed) − x_i(parent), nearest image) · parent lattice, one vector per atom of
+      the observed cell, measured in the parent's cell (the cell change is the strain below); its mean over the
+      atoms (a uniform translation: the origin is free) is removed.
+    * Patterns: the families of `screen.generators.default_candidates` on the parent's primitive cell
+      (dimerise, rhombohedral-split, modulate; with ``soft_modes`` also `generators.soft_modes`), or
+      ``families`` given (a list, or a function of the parent's `screen.parent.Parent` returning one, built on
+      that parent's primitive cell ``build_parent(parent_cell).crystal``). A family's pattern lives on its own
+      supercell; every image of it under the parent's space group (its lattice translations included) is
+      evaluated on the observed atoms and kept when it is periodic in the observed cell (a structure may have
+      picked any of the symmetry-equivalent variants, e.g. any body diagonal). The kept
+      images, uniform translation removed, span the family's subspace. A family none of whose images is periodic
+      in the observed cell (its supercell does not hold the observed cell) cannot contribute and is reported so.
+    * Orthonormalisation: block Gram–Schmidt in the order of the family list: each family keeps only the
+      directions of its subspace not already spanned by the families before it (so its amplitude does not count
+      again what an earlier family covers); ``overlap`` gives the largest cosine between the raw subspaces and
+      ``raw_amplitude_A`` the projection before orthonormalisation.
+    * Amplitude of a component c: |c| = sqrt(Σ_i |c_i|²) over the atoms of the observed cell, Å, so amplitudes
+      and residual add in quadrature to |d|; ``share`` = |c|² / |d|²; ``max_displacement_A`` is the component's
+      largest atomic displacement (the amplitude λ of the generators' families).
+    * Strain: ε = U − 1, the symmetric part of observed lattice = parent lattice · (rotation) · U.
+    """
+    from screener.screen.generators import default_candidates
+    from screener.screen.generators import soft_modes as find_soft_modes
+    from screener.screen.parent import build_parent
+
+    if parent_cell.n_atoms != observed.n_atoms or tuple(parent_cell.species) != tuple(observed.species):
+        raise StructureError("the parent must be written in the observed cell with the observed atom order")
+    d = observed.frac - parent_cell.frac
+    d -= np.rint(d)
+    disp = d @ parent_cell.lattice_A
+    disp = disp - disp.mean(axis=0)
+    vec = disp.reshape(-1)
+    total = float(np.linalg.norm(vec))
+    _, u = polar(np.linalg.solve(parent_cell.lattice_A, observed.lattice_A))
+    strain = u - np.eye(3)
+
+    ctx = build_parent(parent_cell, params, settings)  # standardised primitive cell, same Cartesian frame
+    prim = ctx.crystal
+    notes = []
+    if callable(families):
+        families = list(families(ctx))
+    elif families is None:
+        families = list(default_candidates(ctx, notes=notes))
+        if soft_modes:
+            families += find_soft_modes(ctx, notes=notes)
+    # the observed atoms' parent sites in the primitive cell's fractions and origin
+    sites = (parent_cell.cart_A + ctx.primitive.origin_shift_A) @ np.linalg.inv(prim.lattice_A)
+    rots, trans = ctx.symmetry.rotations, ctx.symmetry.translations
+    n = observed.n_atoms
+
+    basis = np.zeros((3 * n, 0))
+    raw, comps = [], []
+    for fam in families:
+        imgs = _pattern_images(fam, prim, rots, trans, sites, parent_cell.species, parent_cell.lattice_A)
+        common = dict(generator=fam.generator, description=fam.description, q_label=fam.q_label,
+                      supercell_matrix=tuple(tuple(int(x) for x in r) for r in fam.supercell_matrix))
+        sub = np.zeros((3 * n, 0))
+        best = 0.0
+        if len(imgs):
+            imgs = imgs - imgs.mean(axis=1, keepdims=True)
+            a = imgs.reshape(len(imgs), -1).T
+            norms = np.linalg.norm(a, axis=0)
+            if total > 0 and norms.max() > _RANK_TOL:
+                ok = norms > _RANK_TOL
+                best = float(np.max((vec @ a[:, ok] / norms[ok]) ** 2) / total**2)
+            uu, sv, _ = np.linalg.svd(a, full_matrices=False)
+            sub = uu[:, sv > _RANK_TOL * max(1.0, float(sv.max(initial=0.0)))]
+        if sub.shape[1] == 0:
+            why = ("its supercell does not hold the observed cell: no image of the pattern is periodic in it"
+                   if not len(imgs) else "on the observed cell it is a uniform translation only")
+            comps.append(PatternComponent(**common, commensurate=False, note=f"cannot contribute: {why}"))
+            continue
+        rest = sub - basis @ (basis.T @ sub)
+        uu, sv, _ = np.linalg.svd(rest, full_matrices=False)
+        new = uu[:, sv > _RANK_TOL]
+        basis = np.hstack([basis, new])
+        c = new @ (new.T @ vec)
+        amp = float(np.linalg.norm(c))
+        raw.append((_family_label(fam), sub))
+        comps.append(PatternComponent(
+            **common, commensurate=True, images=sub.shape[1], new_directions=new.shape[1], amplitude_A=amp,
+            raw_amplitude_A=float(np.linalg.norm(sub.T @ vec)),
+            max_displacement_A=float(np.max(np.linalg.norm(c.reshape(n, 3), axis=1))),
+            share=amp**2 / total**2 if total > 0 else 0.0, best_image_share=best))
+    resid = vec - basis @ (basis.T @ vec)
+    r_amp = float(np.linalg.norm(resid))
+    overlap = np.array([[float(np.linalg.svd(a.T @ b, compute_uv=False).max()) for _, b in raw] for _, a in raw]
+                       ).reshape(len(raw), len(raw))
+    for c in comps:
+        if not c.commensurate:
+            notes.append(f"{c.generator} q={c.q_label}: {c.note}")
+    return Decomposition(
+        components=tuple(comps), displacement_A=total, residual_A=r_amp,
+        residual_share=r_amp**2 / total**2 if total > 0 else 0.0, overlap=overlap,
+        overlap_labels=tuple(lab for lab, _ in raw), strain=strain, notes=tuple(notes))
 
 
 def bond_table(context, observed: Crystal, mesh) -> tuple[dict, ...]:
@@ -335,8 +574,12 @@ def parent_in_cell(parent: Crystal, observed: Crystal) -> Crystal:
 
 
 def explain(crystal: Crystal, parent: Crystal | None = None, params=None, settings=None,
-            max_displacement_A: float | None = None, max_strain: float | None = None) -> ExplainResult:
-    """Parent, decomposition, energy along the path, bond shares and attribution (see module docstring)."""
+            max_displacement_A: float | None = None, max_strain: float | None = None,
+            soft_modes: bool = False) -> ExplainResult:
+    """Parent, decomposition, energy along the path, bond shares and attribution (see module docstring).
+
+    The decomposition on the candidate patterns takes the soft-mode patterns too when ``soft_modes`` is set (a
+    stiffness survey of the parent, seconds to minutes)."""
     from screener.bz.kmesh import mesh_from_spacing
     from screener.screen.parent import build_parent
     from screener.screen.settings import ScreenSettings
@@ -363,6 +606,8 @@ def explain(crystal: Crystal, parent: Crystal | None = None, params=None, settin
         chain = ((symbol, index),)
     context = build_parent(parent_cell, params, settings, standardise=False)
     modes, strain = decompose(parent_cell, observed)
+    decomposition = project_on_generator_patterns(parent_cell, observed, soft_modes=soft_modes,
+                                                  params=context.params, settings=settings)
     path = energy_along_path(context, observed)
     mesh = mesh_from_spacing(parent_cell, settings.k_step_per_A * settings.refine_factor, context.model.periodic)
     bonds = bond_table(context, observed, mesh)
@@ -386,7 +631,7 @@ def explain(crystal: Crystal, parent: Crystal | None = None, params=None, settin
     return ExplainResult(
         parent_symbol=symbol, parent_number=number, index=index, chain=chain, parent_structure=parent_cell,
         observed_structure=observed, modes=modes, strain=strain, path=path, bonds=bonds, attribution=nominal,
-        member_attributions=members, reasons=tuple(reasons),
+        member_attributions=members, reasons=tuple(reasons), decomposition=decomposition,
     )
 
 

@@ -548,6 +548,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--max-displacement", type=_finite_float, default=None,
                    help="largest atomic displacement to the parent, Å (default 0.4)")
     p.add_argument("--max-strain", type=_finite_float, default=None, help="largest lattice strain to the parent (default 0.08)")
+    p.add_argument("--soft-modes", action="store_true",
+                   help="also split the distortion on the parent's soft-mode patterns (a stiffness survey first)")
     p.set_defaults(func=cmd_explain)
 
     p = sub.add_parser("modes", help="stiffness Φ(q), soft patterns and χ0 of the parent over a q grid")
@@ -565,6 +567,8 @@ def cmd_explain(args) -> int:
     """Is an observed distortion driven by the bands? Parent, path energies, bond shares and an attribution."""
     from pathlib import Path
 
+    import numpy as np
+
     from screener.screen.explain import bond_curves, explain
     from screener.structure.formats import read_structure
 
@@ -577,7 +581,8 @@ def cmd_explain(args) -> int:
 
     settings = ScreenSettings(symprec_A=args.symprec)
     result = explain(crystal, parent=parent, params=params, settings=settings,
-                     max_displacement_A=args.max_displacement, max_strain=args.max_strain)
+                     max_displacement_A=args.max_displacement, max_strain=args.max_strain,
+                     soft_modes=args.soft_modes)
     written = []
     if args.plot:
         from screener.show.figures import plot_bond_curves, plot_explain_path
@@ -594,12 +599,33 @@ def cmd_explain(args) -> int:
             d["figures"] = [str(w) for w in written]
         _print_json(d)
         return 0
+    def _decomposition_lines(dec) -> list[str]:
+        """Table: pattern, q, amplitude (norm over the observed cell's atoms, Å), share of |d|² (%)."""
+        if dec is None:
+            return []
+        rows = [(c.generator, c.q_label, f"{c.amplitude_A:.4f}", f"{100 * c.share:.1f}")
+                for c in dec.components if c.commensurate]
+        rows.append(("residual", "", f"{dec.residual_A:.4f}", f"{100 * dec.residual_share:.1f}"))
+        head = ("pattern", "q", "amplitude Å", "share %")
+        w = [max(len(r[k]) for r in [head, *rows]) for k in range(4)]
+        fmt = lambda r: "  " + "  ".join(x.ljust(w[k]) if k < 2 else x.rjust(w[k])  # noqa: E731
+                                         for k, x in enumerate(r))
+        out = [f"distortion on the parent's patterns (|d| = {dec.displacement_A:.4f} Å over the cell's atoms, "
+               "uniform translation removed; amplitude = norm of each orthonormalised component):",
+               fmt(head), *map(fmt, rows)]
+        out += [f"  {c.generator} q={c.q_label}: {c.note}" for c in dec.components if not c.commensurate]
+        e = np.linalg.eigvalsh(np.asarray(dec.strain))
+        out.append("cell strain (principal, observed vs parent): " + ", ".join(f"{100 * x:+.2f} %" for x in e)
+                   + f"; volume {100 * (np.linalg.det(np.eye(3) + dec.strain) - 1):+.2f} %")
+        return out
+
     p = result.path
     i1 = p.lambda_.index(1.0)
     lines = [f"{args.file}: parent {result.parent_symbol} (index {result.index}; chain "
              + " → ".join(f"{s} [{i}]" for s, i in result.chain) + ")",
-             "distortion: " + ", ".join(f"{n} {a:.3f} Å" for n, a in result.modes),
-             f"path λ = 1 (observed): ΔE band {p.delta_E_band_meV_per_atom[i1]:+.1f}, elastic "
+             "distortion by site orbit: " + ", ".join(f"{n} {a:.3f} Å" for n, a in result.modes)]
+    lines += _decomposition_lines(result.decomposition)
+    lines += [f"path λ = 1 (observed): ΔE band {p.delta_E_band_meV_per_atom[i1]:+.1f}, elastic "
              f"{p.delta_E_elastic_meV_per_atom[i1]:+.1f}, total {p.delta_E_meV_per_atom[i1]:+.1f} meV/atom; "
              f"model optimum λ = {p.optimum_lambda:.2f}",
              "bonds (length parent → observed, share of the band energy, character at E_F):"]
