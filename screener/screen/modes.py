@@ -418,7 +418,8 @@ class PathModes:
             seen.add(key)
             out.append({"q_frac": [float(x) + 0.0 for x in self.q_frac[a]],
                         "distance_inv_A": float(self.distance_inv_A[a]), "label": self.labels[a],
-                        "chi0_with_overlaps": float(y[a]), "chi0_without_overlaps": float(self.chi0_without_overlaps[a]),
+                        "chi0_with_overlaps": float(y[a]),
+                        "chi0_without_overlaps": float(self.chi0_without_overlaps[a]),
                         "lowest_stiffness_eV_per_A2": float(self.lowest_stiffness_eV_per_A2[a])})
         return out if limit is None else out[:limit]
 
