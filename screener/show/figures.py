@@ -454,9 +454,10 @@ def _plot_modes_route(path, out_png, title: str | None = None) -> Path:
     for n, (start, stop) in enumerate(path.segments):
         xs = x[start:stop]
         first = n == 0
-        top.plot(xs, path.chi0_with_overlaps[start:stop], "-o", color=with_c, ms=3, lw=1.6,
+        # the with-overlaps curve wider and below, so it still shows where both coincide (one orbital per cell)
+        top.plot(xs, path.chi0_with_overlaps[start:stop], "-o", color=with_c, ms=4.5, lw=3.0, zorder=2,
                  label="with orbital overlaps" if first else None)
-        top.plot(xs, path.chi0_without_overlaps[start:stop], "--s", color=without_c, ms=2.5, lw=1.2,
+        top.plot(xs, path.chi0_without_overlaps[start:stop], "--s", color=without_c, ms=2.2, lw=1.2, zorder=3,
                  label="overlaps set to 1" if first else None)
         ys = low[start:stop]
         bottom.fill_between(xs, np.minimum(ys, 0.0), 0.0, color=OKABE_ITO["vermillion"], alpha=0.18, lw=0,
@@ -465,7 +466,7 @@ def _plot_modes_route(path, out_png, title: str | None = None) -> Path:
     maxima = path.maxima(3)
     if maxima:
         top.plot([m["distance_inv_A"] for m in maxima], [m["chi0_with_overlaps"] for m in maxima], "v",
-                 color="k", ms=7, ls="", label="largest maxima", zorder=5)
+                 color="k", ms=7, ls="", label="largest maxima", zorder=5, clip_on=False)
     bottom.axhline(0.0, color="0.2", lw=1.0)
     for ax in (top, bottom):
         for t in path.tick_x:
