@@ -555,6 +555,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--q-grid", type=int, default=4, help="largest denominator of q along each direction (default 4)")
     p.add_argument("--no-path", action="store_true",
                    help="skip the special-point route (χ0 and the lowest stiffness at the mesh points it passes)")
+    p.add_argument("--route-points", type=int, default=None, metavar="N",
+                   help="sample each leg of the route at N + 1 evenly spaced points, rounded onto the mesh (default: "
+                        "every mesh point the route passes; fewer is faster)")
     p.add_argument("--electrons", type=_finite_float, help="valence electrons per primitive cell (rigid-band filling)")
     p.set_defaults(func=cmd_modes)
     return parser
@@ -774,6 +777,11 @@ def cmd_modes(args) -> int:
     from screener.screen.parent import build_parent
     from screener.screen.settings import ScreenSettings
 
+    if args.route_points is not None and args.route_points < 1:
+        from screener.errors import ParameterError
+
+        raise ParameterError(f"--route-points must be a positive integer (intervals per leg of the route), "
+                             f"got {args.route_points}")
     if args.plot:
         _check_output_file(args.plot, "--plot")
     parent = build_parent(_read(args), settings=ScreenSettings(symprec_A=args.symprec))
@@ -793,7 +801,7 @@ def cmd_modes(args) -> int:
            "kmesh": list(res.kmesh), "fermi_level_eV": res.fermi_level_eV, "electrons_per_cell": res.n_electrons}
     route = None
     if not args.no_path:
-        route = path_survey(parent, mesh=res.kmesh, n_electrons=args.electrons)
+        route = path_survey(parent, mesh=res.kmesh, n_electrons=args.electrons, n_per_leg=args.route_points)
         out["path"] = {
             "q_frac": route.q_frac.tolist(),
             "distance_inv_A": route.distance_inv_A.tolist(),

@@ -147,3 +147,26 @@ def test_cli_modes_path_json_text_and_plot(tmp_path, capsys):
 
     assert main(["modes", str(AS_CUBIC), "--q-grid", "2", "--json", "--no-path"]) == 0
     assert "path" not in json.loads(capsys.readouterr().out)
+
+
+def test_fewer_route_points_are_a_subset_with_the_same_values():
+    # analytic: n intervals per leg on Γ–½ of an N-point chain mesh give q = (N/2n)·j/N, j = 0 … n, and every value
+    # is the one of the full route at the same q (same mesh, same eigenvectors)
+    p = _chain()
+    st = mesh_states(p.model, (40, 1, 1), width_eV=0.15)
+    full = path_survey(p, states=st)
+    few = path_survey(p, states=st, n_per_leg=4)
+    assert np.allclose(few.q_frac[:, 0] * 40, [0, 5, 10, 15, 20])
+    idx = np.round(few.q_frac[:, 0] * 40).astype(int)
+    assert np.allclose(few.chi0_with_overlaps, full.chi0_with_overlaps[idx], rtol=1e-12)
+    assert np.allclose(few.lowest_stiffness_eV_per_A2, full.lowest_stiffness_eV_per_A2[idx], rtol=1e-10, atol=1e-10)
+    assert np.allclose(few.distance_inv_A, full.distance_inv_A[idx])
+
+
+def test_cli_route_points_must_be_positive(capsys):
+    # the tool's error convention: one line, exit status 2 (project rule, no source)
+    from screener.show.cli import main
+
+    assert main(["modes", str(AS_CUBIC), "--route-points", "0"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--route-points must be a positive integer" in err[0]
