@@ -386,10 +386,13 @@ class PathModes:
     def maxima(self, limit: int | None = None) -> list[dict]:
         """Local maxima of χ0 (with overlaps) along the route, largest first, each q once.
 
-        A point is a maximum when no neighbour on its piece of the route is higher and at least one is lower (by
-        more than 1e-9 of the largest |χ0|, so rounding noise on a flat stretch makes none); on a flat top only its
-        first point counts. Returns dicts with ``q_frac``, ``distance_inv_A``, ``label``, ``chi0_with_overlaps``,
-        ``chi0_without_overlaps`` and ``lowest_stiffness_eV_per_A2``.
+        A point is a maximum when the point before it on its piece of the route is lower (or it is the piece's
+        first) and the stretch of equal values it starts ends in a lower point or the piece's end; "equal" and
+        "lower" within 1e-9 of the largest |χ0|, so rounding noise on a flat stretch makes no maxima, and a flat top
+        counts once, at its first point. At q = 0 χ0 is the density of states at E_F, which a finite mesh shows
+        above its small-q neighbours, so Γ often appears among the smaller maxima. Returns dicts with ``q_frac``,
+        ``distance_inv_A``, ``label``, ``chi0_with_overlaps``, ``chi0_without_overlaps`` and
+        ``lowest_stiffness_eV_per_A2``.
         """
         y = self.chi0_with_overlaps
         tol = 1e-9 * max(1.0, float(np.max(np.abs(y)))) if len(y) else 0.0
