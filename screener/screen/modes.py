@@ -389,8 +389,9 @@ class PathModes:
         A point is a maximum when the point before it on its piece of the route is lower (or it is the piece's
         first) and the stretch of equal values it starts ends in a lower point or the piece's end; "equal" and
         "lower" within 1e-9 of the largest |χ0|, so rounding noise on a flat stretch makes no maxima, and a flat top
-        counts once, at its first point. At q = 0 χ0 is the density of states at E_F, which a finite mesh shows
-        above its small-q neighbours, so Γ often appears among the smaller maxima. Returns dicts with ``q_frac``,
+        counts once, at its first point. At q = 0 χ0 is the density of states at E_F; on a mesh whose level spacing
+        at E_F exceeds the smearing the smallest q fall below it (seen for simple cubic As on 24³), so Γ can appear
+        among the smaller maxima. Returns dicts with ``q_frac``,
         ``distance_inv_A``, ``label``, ``chi0_with_overlaps``, ``chi0_without_overlaps`` and
         ``lowest_stiffness_eV_per_A2``.
         """
