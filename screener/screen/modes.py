@@ -347,6 +347,205 @@ def survey(parent, max_denominator: int = 4, *, method: str = "fermi-dirac", wid
                        fermi_level_eV=st.fermi_level_eV, n_electrons=st.n_electrons)
 
 
+# ---------------------------------------------------------------------------------------------- along the route
+@dataclass(frozen=True, eq=False)
+class PathModes:
+    """χ0 and the lowest stiffness along the special-point route, at q on one Γ-centred mesh."""
+
+    q_frac: np.ndarray
+    """(n, 3) q actually used: the route's points rounded to the mesh (multiples of 1/N), in route order."""
+    distance_inv_A: np.ndarray
+    """(n,) position along the route, Å⁻¹ (2π included) of the route point nearest to each q; no length is added
+    across a break, so the special points sit at the route's own tick positions."""
+    labels: tuple[str, ...]
+    """n labels: the special point's name where a q stands for one (joined as 'X|M' at a break), else ''."""
+    tick_x: np.ndarray
+    """(m,) positions of the route's special points on the distance axis, Å⁻¹."""
+    tick_labels: tuple[str, ...]
+    """m special-point labels at ``tick_x``."""
+    segments: tuple[tuple[int, int], ...]
+    """Continuous pieces of the route as (start, stop) index ranges into ``q_frac`` (stop exclusive)."""
+    chi0_with_overlaps: np.ndarray
+    """(n,) χ0(q) with orbital overlap factors, states/eV per cell."""
+    chi0_without_overlaps: np.ndarray
+    """(n,) χ0(q) with every overlap factor set to 1, states/eV per cell."""
+    lowest_stiffness_eV_per_A2: np.ndarray
+    """(n,) lowest eigenvalue of Φ(q), eV/Å² (negative: a soft pattern)."""
+    off_route_inv_A: np.ndarray
+    """(n,) Cartesian distance of each q from the route point it stands for, Å⁻¹ (0 where the route meets the
+    mesh)."""
+    kmesh: tuple[int, int, int]
+    """The one Γ-centred mesh of parent eigenvectors every q of the route was evaluated on."""
+    lattice_type: str
+    """Lattice type of the route (Setyawan & Curtarolo 2010), as in ``bands``."""
+    fermi_level_eV: float
+    """Fermi level of the filling used, eV."""
+    n_electrons: float
+    """Electrons per primitive cell placed in the bands."""
+
+    def maxima(self, limit: int | None = None) -> list[dict]:
+        """Local maxima of χ0 (with overlaps) along the route, largest first, each q once.
+
+        A point is a maximum when the point before it on its piece of the route is lower (or it is the piece's
+        first) and the stretch of equal values it starts ends in a lower point or the piece's end; "equal" and
+        "lower" within 1e-9 of the largest |χ0|, so rounding noise on a flat stretch makes no maxima, and a flat top
+        counts once, at its first point. At q = 0 χ0 is the density of states at E_F; on a mesh whose level spacing
+        at E_F exceeds the smearing the smallest q fall below it (seen for simple cubic As on 24³), so Γ can appear
+        among the smaller maxima. Returns dicts with ``q_frac``,
+        ``distance_inv_A``, ``label``, ``chi0_with_overlaps``, ``chi0_without_overlaps`` and
+        ``lowest_stiffness_eV_per_A2``.
+        """
+        y = self.chi0_with_overlaps
+        tol = 1e-9 * max(1.0, float(np.max(np.abs(y)))) if len(y) else 0.0
+        found = np.zeros(len(y), dtype=bool)
+        for start, stop in self.segments:
+            seg = y[start:stop]
+            if len(seg) < 2:
+                continue
+            left = np.concatenate([[-np.inf], seg[:-1]])
+            right = np.concatenate([seg[1:], [-np.inf]])
+            # a flat top: only its first point (the left neighbour lower, the right one not higher)
+            found[start:stop] = (seg > left + tol) & (seg >= right - tol)
+            # ... and it must come down again on the right before rising (else it is a shoulder, not a top)
+            for a in np.flatnonzero(found[start:stop]):
+                b = a + 1
+                while b < len(seg) and abs(seg[b] - seg[a]) <= tol:
+                    b += 1
+                if b < len(seg) and seg[b] > seg[a] + tol:
+                    found[start + a] = False
+        order = sorted(np.flatnonzero(found), key=lambda a: -y[a])
+        seen, out = set(), []
+        for a in order:
+            key = tuple(np.round(np.mod(self.q_frac[a] * self.kmesh, self.kmesh)).astype(int) % self.kmesh)
+            if key in seen:
+                continue
+            seen.add(key)
+            out.append({"q_frac": [float(x) + 0.0 for x in self.q_frac[a]],
+                        "distance_inv_A": float(self.distance_inv_A[a]), "label": self.labels[a],
+                        "chi0_with_overlaps": float(y[a]),
+                        "chi0_without_overlaps": float(self.chi0_without_overlaps[a]),
+                        "lowest_stiffness_eV_per_A2": float(self.lowest_stiffness_eV_per_A2[a])})
+        return out if limit is None else out[:limit]
+
+
+def route_on_mesh(parent, mesh, *, n_per_leg: int | None = None):
+    """The special-point route of ``parent`` rounded onto the Γ-centred ``mesh``.
+
+    Returns (q_frac (n, 3), distance (n,) Å⁻¹, labels (n,), off-route distance (n,) Å⁻¹, segments, route). The
+    route is sampled finer than the mesh (or with ``n_per_leg`` intervals per leg between special points), each
+    sample rounded to the nearest multiple of 1/N per direction, and runs of equal rounded q merged, piece by piece,
+    keeping route order. Each q takes the route position of the sample nearest to it.
+    """
+    from screener.bz.routes import zone_route
+
+    m = np.asarray(mesh, dtype=float)
+    rec2pi = 2 * np.pi * np.asarray(parent.crystal.reciprocal_A)
+    periodic = np.asarray(parent.model.periodic, dtype=bool)
+    if n_per_leg is None:
+        # a quarter of the finest mesh step (Cartesian) per route step: every mesh point the route passes is hit
+        step = np.linalg.norm(rec2pi, axis=1) / m
+        density = 4.0 / float(np.min(step[periodic])) if periodic.any() else 1.0
+        route = zone_route(parent.crystal, density, parent.settings.symprec_A, periodic=parent.model.periodic)
+    else:
+        if int(n_per_leg) < 1:
+            raise ParameterError(f"the route needs at least one interval per leg, got {n_per_leg!r}")
+        route = zone_route(parent.crystal, 1e-9, parent.settings.symprec_A, min_points_per_leg=int(n_per_leg),
+                           periodic=parent.model.periodic)
+    k = np.asarray(route.kfrac, dtype=float)
+    x = np.asarray(route.x_inv_A, dtype=float)
+    addr = np.round(k * m).astype(int)
+    q = addr / m
+    piece = np.zeros(len(k), dtype=int)
+    for n, (start, stop) in enumerate(route.segments):
+        piece[start:stop] = n
+    new = np.ones(len(k), dtype=bool)
+    new[1:] = np.any(addr[1:] != addr[:-1], axis=1) | (piece[1:] != piece[:-1])
+    group = np.cumsum(new) - 1
+    n_q = int(group[-1]) + 1
+    # each q's foot on the route: projection onto the route step after and before each of its samples (Cartesian),
+    # the nearest foot wins; position along the route and distance from it follow
+    kc, qc = k @ rec2pi, q @ rec2pi
+    same_piece = np.concatenate([piece[1:] == piece[:-1], [False]])
+    best_miss = np.full(len(k), np.inf)
+    best_x = x.copy()
+    for a, b, ok in ((np.arange(len(k)), np.minimum(np.arange(len(k)) + 1, len(k) - 1), same_piece),
+                     (np.maximum(np.arange(len(k)) - 1, 0), np.arange(len(k)), np.roll(same_piece, 1))):
+        d = kc[b] - kc[a]
+        length2 = np.einsum("ij,ij->i", d, d)
+        t = np.where(ok & (length2 > 0), np.einsum("ij,ij->i", qc - kc[a], d) / np.where(length2 > 0, length2, 1),
+                     0.0)
+        t = np.clip(t, 0.0, 1.0)
+        foot = kc[a] + t[:, None] * d
+        miss = np.linalg.norm(qc - foot, axis=1)
+        better = miss < best_miss
+        best_miss = np.where(better, miss, best_miss)
+        best_x = np.where(better, x[a] + t * (x[b] - x[a]), best_x)
+    # per q, the sample whose foot is nearest (lexsort: by group, then by distance from the route)
+    order = np.lexsort((best_miss, group))
+    first = order[np.concatenate([[True], group[order][1:] != group[order][:-1]])]
+    q_used = q[first]
+    dist = best_x[first]
+    miss_used = best_miss[first]
+    labels = [""] * n_q
+    for idx, lab in route.vertices:
+        g = int(group[idx])
+        if labels[g] and labels[g] != lab:
+            labels[g] = f"{labels[g]}|{lab}"
+        elif not labels[g]:
+            labels[g] = lab
+    # where the route crosses the mesh obliquely, two mesh points can have the same foot (one each side): keep the
+    # nearer, unless the farther one stands for a special point
+    q_piece = piece[first]
+    tie = (np.abs(np.diff(dist)) < 1e-9) & (q_piece[1:] == q_piece[:-1])
+    named = np.array([bool(lab) for lab in labels])
+    drop = np.zeros(n_q, dtype=bool)
+    drop[:-1] |= tie & (miss_used[:-1] > miss_used[1:]) & ~named[:-1]
+    drop[1:] |= tie & (miss_used[1:] >= miss_used[:-1]) & ~named[1:]
+    keep = ~drop
+    q_used, dist, miss_used, q_piece = q_used[keep], dist[keep], miss_used[keep], q_piece[keep]
+    labels = [lab for lab, k_ in zip(labels, keep, strict=True) if k_]
+    starts = np.flatnonzero(np.concatenate([[True], q_piece[1:] != q_piece[:-1]]))
+    segments = tuple((int(a), int(b)) for a, b in zip(starts, list(starts[1:]) + [len(q_used)], strict=True))
+    return q_used + 0.0, dist, tuple(labels), miss_used, segments, route
+
+
+def path_survey(parent, max_denominator: int = 4, *, mesh=None, states: MeshStates | None = None,
+                n_per_leg: int | None = None, method: str = "fermi-dirac", width_eV: float = 0.05,
+                n_electrons: float | None = None, k_step_per_A: float = 0.15) -> PathModes:
+    """χ0(q) (with and without overlap factors) and the lowest eigenvalue of Φ(q) along the special-point route.
+
+    Φ(q) and χ0(q) need k and k + q on one Γ-centred mesh, so the route is evaluated at the mesh points it passes
+    (``route_on_mesh``): the mesh of ``states``, else ``mesh``, else the mesh ``survey`` uses for the same
+    ``max_denominator`` and ``k_step_per_A`` (so the route's q that are on the survey's grid give the survey's
+    values). One set of parent eigenvectors serves every q; each distinct q is evaluated once.
+    """
+    from screener.bz.susceptibility import lindhard
+
+    if states is None:
+        if mesh is None:
+            mesh = modes_mesh(parent, q_grid(parent, max_denominator), k_step_per_A)
+        states = mesh_states(parent.model, mesh, method=method, width_eV=width_eV, n_electrons=n_electrons)
+    mesh = states.mesh
+    q, dist, labels, miss, segments, route = route_on_mesh(parent, mesh, n_per_leg=n_per_leg)
+    m = np.asarray(mesh)
+    key = np.mod(np.round(q * m).astype(int), m)
+    _, first, inverse = np.unique(key, axis=0, return_index=True, return_inverse=True)
+    inverse = np.asarray(inverse).reshape(-1)
+    values = np.empty((len(first), 3))
+    for u, a in enumerate(first):  # one stiffness and two χ0 per distinct q (a loop over q, not k)
+        values[u, 0] = lindhard(mesh, states.energies_eV, states.vectors, states.occupations, states.dfde_per_eV,
+                                q[a], overlaps=True, spin_degeneracy=states.spin_degeneracy)
+        values[u, 1] = lindhard(mesh, states.energies_eV, states.vectors, states.occupations, states.dfde_per_eV,
+                                q[a], overlaps=False, spin_degeneracy=states.spin_degeneracy)
+        values[u, 2] = stiffness(parent, q[a], states=states).eigenvalues_eV_per_A2[0]
+    per_q = values[inverse]
+    return PathModes(q_frac=q, distance_inv_A=dist, labels=labels, tick_x=np.asarray(route.tick_x, dtype=float),
+                     tick_labels=tuple(route.tick_labels), segments=segments, chi0_with_overlaps=per_q[:, 0],
+                     chi0_without_overlaps=per_q[:, 1], lowest_stiffness_eV_per_A2=per_q[:, 2],
+                     off_route_inv_A=miss, kmesh=tuple(int(x) for x in mesh), lattice_type=route.lattice_type,
+                     fermi_level_eV=states.fermi_level_eV, n_electrons=states.n_electrons)
+
+
 #: eV/Å³ in GPa (1 eV = 1.602176634e-19 J exactly, SI 2019; 1 Å³ = 1e-30 m³).
 EV_PER_A3_IN_GPA = 160.21766208
 #: Voigt index -> Cartesian pair (xx, yy, zz, yz, xz, xy).

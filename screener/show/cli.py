@@ -555,8 +555,14 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("modes", help="stiffness Φ(q), soft patterns and χ0 of the parent over a q grid")
     _add_structure_args(p)
     p.add_argument("--json", action="store_true", help="print one JSON object")
-    p.add_argument("--plot", help="write the lowest stiffness and χ0 per searched q to this PNG file")
+    p.add_argument("--plot", help="write χ0 and the lowest stiffness along the special-point route to this PNG file "
+                                  "(with --no-path: per searched q)")
     p.add_argument("--q-grid", type=int, default=4, help="largest denominator of q along each direction (default 4)")
+    p.add_argument("--no-path", action="store_true",
+                   help="skip the special-point route (χ0 and the lowest stiffness at the mesh points it passes)")
+    p.add_argument("--route-points", type=int, default=None, metavar="N",
+                   help="sample each leg of the route at N + 1 evenly spaced points, rounded onto the mesh (default: "
+                        "every mesh point the route passes; fewer is faster)")
     p.add_argument("--electrons", type=_finite_float, help="valence electrons per primitive cell (rigid-band filling)")
     p.set_defaults(func=cmd_modes)
     return parser
@@ -743,19 +749,68 @@ def _interrupted(exc) -> int:
 
 
 # ---------------------------------------------------------------------------------------------- modes
+def _route_text(route) -> str:
+    """The route table of ``modes``: every q used (as multiples of 1/N of the mesh), χ0 and the lowest stiffness,
+    then the χ0 maxima along the route."""
+    import numpy as np
+
+    mesh = np.asarray(route.kmesh)
+    names = "–".join(route.tick_labels)
+    lines = [f"along the route {names} ({route.lattice_type}): {len(route.q_frac)} q, the route's points rounded onto "
+             f"the {'×'.join(map(str, route.kmesh))} mesh (q = n/N in fractions of the reciprocal vectors)"]
+    far = float(np.max(route.off_route_inv_A)) if len(route.q_frac) else 0.0
+    if far > 1e-9:
+        lines.append(f"  largest distance of a q from the route: {far:.3f} Å⁻¹ (where the route crosses the mesh "
+                     "obliquely or a special point is off the mesh)")
+    lines.append(f"  {'q (n/N)':<24} {'point':<6} {'path (Å⁻¹)':>10} {'χ0 (states/eV)':>15} {'χ0, overlaps 1':>15} "
+                 f"{'lowest (eV/Å²)':>15}")
+    for a, q in enumerate(route.q_frac):
+        n = np.round(q * mesh).astype(int)
+        frac = "(" + ", ".join(f"{x}/{m}" if m > 1 else str(x) for x, m in zip(n, mesh, strict=True)) + ")"
+        lines.append(f"  {frac:<24} {route.labels[a]:<6} {route.distance_inv_A[a]:10.3f} "
+                     f"{route.chi0_with_overlaps[a]:15.3f} {route.chi0_without_overlaps[a]:15.3f} "
+                     f"{route.lowest_stiffness_eV_per_A2[a]:15.3f}")
+    maxima = route.maxima(5)
+    if maxima:
+        lines.append("χ0 maxima along the route: " + "; ".join(
+            f"{m['chi0_with_overlaps']:.3f} at ({', '.join(f'{x:.3g}' for x in m['q_frac'])})"
+            + (f" {m['label']}" if m["label"] else "") for m in maxima))
+    soft = int(np.argmin(route.lowest_stiffness_eV_per_A2))
+    lines.append(f"lowest stiffness along the route: {route.lowest_stiffness_eV_per_A2[soft]:.3f} eV/Å² at "
+                 f"({', '.join(f'{x:.3g}' for x in route.q_frac[soft])})"
+                 + (f" {route.labels[soft]}" if route.labels[soft] else ""))
+    return "\n".join(lines)
+
+
 def cmd_modes(args) -> int:
     """Stiffness of the parent over a q grid. ``--json`` prints ``q_points`` [{``q_frac``,
     ``stiffness_eV_per_A2`` (ascending), ``patterns`` (in words), ``chi0`` {``with_overlaps``,
     ``without_overlaps``} (states/eV per cell)}], ``soft`` (negative stiffnesses, most negative first), ``searched``
     (the q list), ``kmesh``, ``fermi_level_eV``, ``electrons_per_cell`` and, for 3-D periodic cells at the default
     filling, ``strain`` {``elastic_constants_GPa`` (6 × 6, Voigt), ``eigenvalues_GPa``, ``bulk_modulus_GPa``,
-    ``instabilities`` (in words), ``kmesh``}."""
+    ``instabilities`` (in words), ``kmesh``} and, unless ``--no-path``, ``path`` {``q_frac`` (the q used: the
+    special-point route rounded onto the same k-mesh), ``distance_inv_A``, ``labels`` (special point per q or
+    ""), ``ticks`` [{``label``, ``distance_inv_A``}], ``chi0_with_overlaps``, ``chi0_without_overlaps``,
+    ``lowest_stiffness_eV_per_A2``, ``off_route_inv_A``, ``lattice_type``, ``kmesh``, ``maxima`` (local χ0 maxima,
+    largest first)}."""
     import numpy as np
 
-    from screener.screen.modes import cubic_summary, describe_pattern, describe_strain, strain_stiffness, survey
+    from screener.screen.modes import (
+        cubic_summary,
+        describe_pattern,
+        describe_strain,
+        path_survey,
+        strain_stiffness,
+        survey,
+    )
     from screener.screen.parent import build_parent
     from screener.screen.settings import ScreenSettings
 
+    if args.route_points is not None and args.route_points < 1:
+        from screener.errors import ParameterError
+
+        raise ParameterError(f"--route-points must be a positive integer (intervals per leg of the route), "
+                             f"got {args.route_points}")
     if args.plot:
         _check_output_file(args.plot, "--plot")
     parent = build_parent(_read(args), settings=ScreenSettings(symprec_A=args.symprec))
@@ -773,6 +828,23 @@ def cmd_modes(args) -> int:
     soft.sort(key=lambda x: x["stiffness_eV_per_A2"])
     out = {"file": str(args.file), "q_points": points, "soft": soft, "searched": [list(q) for q in res.searched],
            "kmesh": list(res.kmesh), "fermi_level_eV": res.fermi_level_eV, "electrons_per_cell": res.n_electrons}
+    route = None
+    if not args.no_path:
+        route = path_survey(parent, mesh=res.kmesh, n_electrons=args.electrons, n_per_leg=args.route_points)
+        out["path"] = {
+            "q_frac": route.q_frac.tolist(),
+            "distance_inv_A": route.distance_inv_A.tolist(),
+            "labels": list(route.labels),
+            "ticks": [{"label": lab, "distance_inv_A": float(x)}
+                      for lab, x in zip(route.tick_labels, route.tick_x, strict=True)],
+            "chi0_with_overlaps": route.chi0_with_overlaps.tolist(),
+            "chi0_without_overlaps": route.chi0_without_overlaps.tolist(),
+            "lowest_stiffness_eV_per_A2": route.lowest_stiffness_eV_per_A2.tolist(),
+            "off_route_inv_A": route.off_route_inv_A.tolist(),
+            "lattice_type": route.lattice_type,
+            "kmesh": list(route.kmesh),
+            "maxima": route.maxima(),
+        }
     strain = None
     if all(parent.model.periodic) and args.electrons is None:
         strain = strain_stiffness(parent)
@@ -787,7 +859,7 @@ def cmd_modes(args) -> int:
     if args.plot:
         from screener.show.figures import plot_modes
 
-        plot_modes(res, args.plot, title=parent.crystal.formula)
+        plot_modes(res, args.plot, title=parent.crystal.formula, path=route)
     if args.json:
         _print_json(out)
         return 0
@@ -809,6 +881,8 @@ def cmd_modes(args) -> int:
     chis = sorted(points, key=lambda x: -x["chi0"]["with_overlaps"])[:3]
     lines.append("χ0 maxima: " + "; ".join(f"{c['chi0']['with_overlaps']:.3f} at "
                                            f"({', '.join(f'{x:.3g}' for x in c['q_frac'])})" for c in chis))
+    if route is not None:
+        lines += ["", _route_text(route)]
     if strain is not None:
         c = strain.elastic_constants_GPa
         lines += ["", "homogeneous strain: clamped-ion elastic constants of the model (GPa, Voigt xx yy zz yz xz xy)"]

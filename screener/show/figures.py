@@ -411,8 +411,17 @@ def plot_bond_curves(energies_eV, fermi_level_eV: float, curves, out_png) -> Pat
     return _save(fig, out_png)
 
 
-def plot_modes(result, out_png, title: str | None = None) -> Path:
-    """Lowest stiffness eigenvalue and χ0 per searched q (a ModesResult of screener.screen.modes)."""
+#: Axis labels of the route figure of ``modes``.
+Q_ROUTE_LABEL = "wave vector q along the route (path length, Å$^{-1}$)"
+CHI0_LABEL = "χ$_0$ (states/eV per cell)"
+STIFFNESS_LABEL = "lowest stiffness (eV/Å$^2$)"
+
+
+def plot_modes(result, out_png, title: str | None = None, *, path=None) -> Path:
+    """Lowest stiffness eigenvalue and χ0 per searched q (a ModesResult of screener.screen.modes); with ``path``
+    (a PathModes of screener.screen.modes), χ0 and the lowest stiffness along the special-point route instead."""
+    if path is not None:
+        return _plot_modes_route(path, out_png, title)
     low = [float(s.eigenvalues_eV_per_A2[0]) for s in result.stiffness]
     chi = [c[0] for c in result.chi0_states_per_eV]
     labels = ["(" + ",".join(f"{x:.2g}" for x in q) + ")" for q in result.searched]
@@ -429,4 +438,50 @@ def plot_modes(result, out_png, title: str | None = None) -> Path:
     ax2.set_xlabel("q (fractions of the reciprocal vectors)")
     if title:
         ax1.set_title(title)
+    return _save(fig, out_png)
+
+
+def _plot_modes_route(path, out_png, title: str | None = None) -> Path:
+    """Two panels along the route: χ0 with and without overlap factors (top), the lowest stiffness with a zero line
+    (bottom); a marker at every q evaluated (the mesh points the route passes), special points on the x axis."""
+    x = np.asarray(path.distance_inv_A, dtype=float)
+    if len(x) == 0:
+        raise ParameterError("the route has no q point to plot")
+    fig = _new_figure((7.0, 5.6))
+    top, bottom = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [1.0, 1.0]})
+    with_c, without_c, stiff_c = OKABE_ITO["blue"], OKABE_ITO["orange"], OKABE_ITO["bluish green"]
+    low = np.asarray(path.lowest_stiffness_eV_per_A2, dtype=float)
+    for n, (start, stop) in enumerate(path.segments):
+        xs = x[start:stop]
+        first = n == 0
+        # the with-overlaps curve wider and below, so it still shows where both coincide (one orbital per cell)
+        top.plot(xs, path.chi0_with_overlaps[start:stop], "-o", color=with_c, ms=4.5, lw=3.0, zorder=2,
+                 label="with orbital overlaps" if first else None)
+        top.plot(xs, path.chi0_without_overlaps[start:stop], "--s", color=without_c, ms=2.2, lw=1.2, zorder=3,
+                 label="overlaps set to 1" if first else None)
+        ys = low[start:stop]
+        bottom.fill_between(xs, np.minimum(ys, 0.0), 0.0, color=OKABE_ITO["vermillion"], alpha=0.18, lw=0,
+                            label="soft (negative)" if first else None)
+        bottom.plot(xs, ys, "-o", color=stiff_c, ms=3, lw=1.6)
+    maxima = path.maxima(3)
+    if maxima:
+        top.plot([m["distance_inv_A"] for m in maxima], [m["chi0_with_overlaps"] for m in maxima], "v",
+                 color="k", ms=7, ls="", label="largest maxima", zorder=5, clip_on=False)
+    bottom.axhline(0.0, color="0.2", lw=1.0)
+    for ax in (top, bottom):
+        for t in path.tick_x:
+            ax.axvline(t, color="0.8", lw=0.7, zorder=0)
+    lo, hi = float(min(x.min(), np.min(path.tick_x))), float(max(x.max(), np.max(path.tick_x)))
+    bottom.set_xlim(lo, hi) if hi > lo else bottom.set_xlim(lo - 0.5, lo + 0.5)
+    bottom.set_xticks(list(path.tick_x))
+    bottom.set_xticklabels(list(path.tick_labels))
+    top.set_ylabel(CHI0_LABEL)
+    bottom.set_ylabel(STIFFNESS_LABEL)
+    bottom.set_xlabel(Q_ROUTE_LABEL)
+    top.legend(fontsize=8, loc="best", framealpha=0.9)
+    if np.any(low < 0):
+        bottom.legend(fontsize=8, loc="best", framealpha=0.9)
+    mesh = "×".join(str(n) for n in path.kmesh)
+    head = f"{title}: " if title else ""
+    top.set_title(f"{head}{len(x)} q on the route, each on the Γ-centred {mesh} mesh", fontsize=10)
     return _save(fig, out_png)
