@@ -390,6 +390,24 @@ def _export(table, path) -> None:
             os.unlink(tmp)
 
 
+def _write_structure_atomically(crystal, path, **options) -> None:
+    """Write a structure file through a temporary file beside ``path`` and a rename: never half-written."""
+    import os
+    import tempfile
+
+    from screener.structure.formats import write_structure
+
+    p = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.stem}-", suffix=p.suffix, dir=p.resolve().parent)
+    os.close(fd)
+    try:
+        write_structure(crystal, tmp, **options)
+        os.replace(tmp, p)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+
+
 def _write_atomically(path, text: str) -> None:
     """Write ``text`` to a temporary file beside ``path``, then rename it: never a half-written file."""
     import os
@@ -543,6 +561,9 @@ def build_parser() -> argparse.ArgumentParser:
     _add_structure_args(p)
     p.add_argument("--json", action="store_true", help="print one JSON object")
     p.add_argument("--parent", help="parent structure file (default: the highest-symmetry parent found)")
+    p.add_argument("--write-parent", metavar="FILE",
+                   help="write the parent found (positions and cell idealised, in the observed structure's cell and "
+                        "atom order) to FILE (.cif or .json)")
     p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
     p.add_argument("--plot", metavar="DIR", help="write the path-energy and bond figures into this folder")
     p.add_argument("--max-displacement", type=_finite_float, default=None,
@@ -580,6 +601,10 @@ def cmd_explain(args) -> int:
 
     if args.plot:
         _check_output_folder(args.plot, "--plot", "the figures")
+    if args.write_parent:
+        if Path(args.write_parent).suffix.lower() not in (".cif", ".json"):
+            raise ScreenerError(f"--write-parent {args.write_parent}: the name must end in .cif or .json")
+        _check_output_file(args.write_parent, "--write-parent")
     crystal = _read(args)
     parent = read_structure(args.parent) if args.parent else None
     params = _parameters_for(crystal, args.params)
@@ -590,6 +615,9 @@ def cmd_explain(args) -> int:
                      max_displacement_A=args.max_displacement, max_strain=args.max_strain,
                      soft_modes=args.soft_modes)
     written = []
+    if args.write_parent:
+        _write_structure_atomically(result.parent_structure, args.write_parent,
+                                    title=f"{result.parent_structure.formula}_parent_{result.parent_symbol}")
     if args.plot:
         from screener.show.figures import plot_bond_curves, plot_explain_path
 
@@ -603,6 +631,8 @@ def cmd_explain(args) -> int:
         d["file"] = str(args.file)
         if written:
             d["figures"] = [str(w) for w in written]
+        if args.write_parent:
+            d["parent_file"] = str(args.write_parent)
         _print_json(d)
         return 0
     def _decomposition_lines(dec) -> list[str]:
@@ -642,6 +672,8 @@ def cmd_explain(args) -> int:
                      f" {b['bond_character_at_EF']['parent']} → {b['bond_character_at_EF']['observed']}")
     lines.append(f"attribution: {result.attribution}")
     lines += [f"  - {r}" for r in result.reasons]
+    if args.write_parent:
+        lines.append(f"wrote the parent ({result.parent_symbol}) to {args.write_parent}")
     lines += [f"wrote {w}" for w in written]
     print("\n".join(lines))
     return 0

@@ -124,3 +124,17 @@ def test_a7_bismuth_explained():
     assert short["bond_energy_eV"]["observed"] < short["bond_energy_eV"]["parent"] < long_["bond_energy_eV"]["observed"]
     assert r.path.optimum_lambda == pytest.approx(1.0, abs=0.5)
     assert r.attribution == "band-driven"
+
+
+def test_explain_writes_the_parent_it_found(tmp_path, capsys):
+    # the simple-cubic parent of A7 As (Schiferl & Barrett 1969) written in the observed cell reads back as Pm-3m
+    from screener.show.cli import main
+
+    out = tmp_path / "parent.cif"
+    assert main(["explain", "tests/data/As_A7_rhombohedral.cif", "--write-parent", str(out)]) == 0
+    assert f"wrote the parent (Pm-3m) to {out}" in capsys.readouterr().out
+    from screener.structure.symmetry import analyse
+
+    parent = read_structure(out)
+    assert analyse(parent).number == 221 and parent.n_atoms == 2
+    assert main(["explain", "tests/data/As_A7_rhombohedral.cif", "--write-parent", str(tmp_path / "p.txt")]) == 2
