@@ -456,10 +456,12 @@ def soft_modes(parent, q_grid: int = SOFT_MODE_Q_GRID, max_modes: int = SOFT_MOD
         for a in np.flatnonzero(vals < -scale):
             v = vecs[:, a]
             if not any(st.q_frac):
-                # remove the uniform translation component; what is left must still move atoms
+                # remove the uniform translation component (it moves nothing relative to anything); what is left
+                # must still move atoms
                 t = v.reshape(n, 3).mean(axis=0)
                 if np.linalg.norm(v.reshape(n, 3) - t) < 1e-3:
                     continue
+                v = (v.reshape(n, 3) - t).reshape(-1)
             # a degenerate soft level: its eigenvectors are an arbitrary basis, so take the most symmetric
             # pattern of the level (the A7 split of simple cubic is the (1,1,1) combination of three at R)
             level = np.flatnonzero(np.abs(vals - vals[a]) < 1e-4 * max(1.0, abs(float(vals[a]))))
