@@ -54,6 +54,9 @@ class DistortionFamily:
     """Unit Cartesian displacement direction (for longitudinal modes, parallel to q)."""
     strain_axis: tuple[float, float, float] | None = None
     """Unit Cartesian axis of an optional volume-conserving uniaxial cell strain relaxed with λ (None: fixed cell)."""
+    strain_tensor: np.ndarray | None = None
+    """(3, 3) symmetric homogeneous strain per unit λ (a strain family: the cell becomes L (1 + λ E), fractional
+    positions kept); scaled so that λ is the largest change of a parent nearest-neighbour bond vector, Å."""
 
     def at(self, amplitude_A: float, strain: float = 0.0) -> Crystal:
         """The distorted structure at amplitude λ = ``amplitude_A`` (largest displacement, Å)."""
@@ -69,6 +72,8 @@ class DistortionFamily:
         ref = self.reference
         frac = ref.frac + float(amplitude_A) * self.pattern_A @ np.linalg.inv(ref.lattice_A)
         lattice = ref.lattice_A
+        if self.strain_tensor is not None:
+            lattice = lattice @ (np.eye(3) + float(amplitude_A) * np.asarray(self.strain_tensor))
         if strain:
             if self.strain_axis is None:
                 raise ParameterError(f"the {self.generator} family has no strain axis; strain must be 0")
@@ -523,6 +528,76 @@ def _symmetric_patterns(ctx, q_frac, basis: np.ndarray, most: int = 3) -> list[n
     return [v for _, (_, v) in ranked[:most]]
 
 
+#: Trial strains (Voigt) for the most symmetric members of a degenerate unstable strain level: uniaxial,
+#: tetragonal, orthorhombic, simple shears, trigonal shears along the body diagonals.
+_TRIAL_STRAINS = np.array([
+    [1, 0, 0, 0, 0, 0], [0, 1, 0, 0, 0, 0], [0, 0, 1, 0, 0, 0],
+    [2, -1, -1, 0, 0, 0], [-1, 2, -1, 0, 0, 0], [-1, -1, 2, 0, 0, 0],
+    [1, -1, 0, 0, 0, 0], [1, 0, -1, 0, 0, 0], [0, 1, -1, 0, 0, 0],
+    [0, 0, 0, 1, 0, 0], [0, 0, 0, 0, 1, 0], [0, 0, 0, 0, 0, 1],
+    [0, 0, 0, 1, 1, 1], [0, 0, 0, 1, -1, -1], [0, 0, 0, -1, 1, -1], [0, 0, 0, -1, -1, 1],
+], dtype=float)
+
+
+def strain_family(parent, voigt, description: str = "", generator: str = "soft-mode") -> DistortionFamily:
+    """A homogeneous-strain family of the parent's own cell: L → L (1 + λ E(voigt)), positions kept, with λ the
+    largest change of a nearest-neighbour bond vector (Å), so its scan range is that of the displacement families."""
+    from screener.screen.modes import strain_matrix
+
+    ctx = _parent(parent)
+    crystal = ctx.crystal
+    e = strain_matrix(np.asarray(voigt, dtype=float))
+    bonds = ctx.shells.vector_A
+    scale = float(np.max(np.linalg.norm(bonds @ e, axis=1)))
+    if scale < 1e-12:
+        raise ParameterError("the strain changes no nearest-neighbour bond")
+    e = e / scale
+    w, v = np.linalg.eigh(e)
+    axis = v[:, int(np.argmax(np.abs(w)))]
+    return DistortionFamily(
+        generator=generator, description=description or "homogeneous strain", q_frac=(0.0, 0.0, 0.0),
+        q_label=fraction_label((0, 0, 0)), supercell_matrix=np.eye(3, dtype=int), reference=crystal,
+        pattern_A=np.zeros((crystal.n_atoms, 3)), polarisation=tuple(float(x) for x in axis), strain_tensor=e)
+
+
+def strain_instabilities(parent, most: int = 3, notes: list | None = None) -> list[DistortionFamily]:
+    """Candidates from the parent's unstable homogeneous strains (negative eigenvalues of its elastic constants,
+    screener.screen.modes.strain_stiffness): per degenerate level, one strain per distinct product space group,
+    most symmetric first (at most ``most``). A cell with vacuum has none."""
+    from screener.screen.modes import describe_strain, strain_stiffness
+    from screener.structure.symmetry import analyse
+
+    ctx = _parent(parent)
+    if not all(ctx.model.periodic):
+        return []
+    st = strain_stiffness(ctx)
+    out = []
+    for value, basis in st.unstable:
+        q_basis, _ = np.linalg.qr(basis)
+        trials = [q_basis @ (q_basis.T @ t) for t in _TRIAL_STRAINS]
+        if all(np.linalg.norm(t) < 1e-3 for t in trials):
+            trials = [q_basis[:, k] for k in range(basis.shape[1])]  # no standard strain in the level: its basis
+        by_group: dict[int, tuple[float, DistortionFamily]] = {}
+        for t in trials:
+            if np.linalg.norm(t) < 1e-3:
+                continue
+            t = t / np.linalg.norm(t)
+            try:
+                fam = strain_family(ctx, t, description=f"unstable strain ({describe_strain((value, t[:, None]))})")
+            except ParameterError:
+                continue
+            sym = analyse(fam.at(0.05), ctx.settings.symprec_A)
+            ops = len(sym.rotations)
+            if sym.number not in by_group or ops > by_group[sym.number][0]:
+                by_group[sym.number] = (ops, fam)
+        ranked = sorted(by_group.items(), key=lambda kv: (-kv[1][0], -kv[0]))
+        out += [fam for _, (_, fam) in ranked[:most]]
+    if notes is not None:
+        notes.append(f"strain search: {len(st.unstable)} unstable strain level(s) of the model's elastic constants, "
+                     f"{len(out)} strain candidate(s) handed on")
+    return out
+
+
 def zone_boundary_points(parent, symprec: float = SYMPREC_A) -> list[np.ndarray]:
     """Symmetry-distinct non-zero time-reversal-invariant points q ∈ {0, 1/2}³ of the parent's reciprocal cell."""
     ctx = _parent(parent, symprec)
@@ -544,6 +619,8 @@ def zone_boundary_points(parent, symprec: float = SYMPREC_A) -> list[np.ndarray]
 
 def _same_mode(a: DistortionFamily, b: DistortionFamily, rot_frac: np.ndarray, rot_cart: np.ndarray) -> bool:
     """True if b is a symmetry image of a (same q star and polarisation)."""
+    if (a.strain_tensor is None) != (b.strain_tensor is None):
+        return False  # a cell strain and an atomic displacement pattern are never the same candidate
     qa, qb = np.array(a.q_frac), np.array(b.q_frac)
     star = np.einsum("nji,j->ni", rot_frac, qa)
     diff = star - qb
@@ -584,6 +661,7 @@ def default_candidates(parent, generators=None, extra_q=(), symprec: float = SYM
                 notes.append(f"no displacement pattern of the modulate kind at q = {fraction_label(q)}: {exc}")
     if "soft-mode" in gens:
         fams += soft_modes(parent, notes=notes)
+        fams += strain_instabilities(parent, notes=notes)
     rot_frac = parent.symmetry.rotations
     rot_cart = parent.point_group_cart
     unique: list[DistortionFamily] = []

@@ -69,3 +69,35 @@ def test_simple_cubic_as_soft_level_at_r_includes_the_a7_split(as_soft):
                                         "three short bonds; a known miss, kept on purpose")
 def test_simple_cubic_as_a7_split_is_the_most_favourable_soft_pattern(as_soft):
     assert as_soft.candidates[0].space_group_number == 166
+
+
+def test_strain_family_lambda_is_the_largest_bond_vector_change():
+    # hand check: uniaxial strain of a cube along x; the x bond (length a) grows by λ, the others stay
+    from screener.screen.generators import strain_family
+
+    cube = Crystal(3.0 * np.eye(3), [[0, 0, 0]], ["As"])
+    fam = strain_family(cube, (1, 0, 0, 0, 0, 0))
+    c = fam.at(0.1)
+    assert np.allclose(np.linalg.norm(c.lattice_A, axis=1), [3.1, 3.0, 3.0])
+    assert np.allclose(c.frac, cube.frac)
+
+
+def test_po_unstable_strains_include_the_beta_po_group_and_are_not_band_driven():
+    # α-Po's model elastic constants have C44 < 0 (tests/screen/test_strain.py); the trigonal shear leads to
+    # rhombohedral R-3m, the group of β-Po (from memory). In this model the gain is the closure's, so the verdict
+    # must not be "unstable" (the band-must-gain rule)
+    from screener.screen.balance import evaluate_family
+    from screener.screen.generators import strain_instabilities
+    from screener.screen.parent import build_parent
+
+    p = build_parent(read_structure(KNOWN / "Po_alpha_simple_cubic.cif"),
+                     settings=ScreenSettings(k_step_per_A=0.3, max_refinements=1))
+    notes = []
+    fams = strain_instabilities(p, notes=notes)
+    assert any("strain search" in n for n in notes)
+    trigonal = [f for f in fams if np.allclose(np.abs(np.diag(f.strain_tensor)), 0)]
+    assert trigonal
+    r = evaluate_family(trigonal[0], p)
+    assert r.space_group_number == 166
+    assert r.delta_E_meV_per_atom < 0 < r.delta_E_band_meV_per_atom  # a gain, but the bands lose
+    assert r.verdict == "marginal"  # (converged or not, a gain the bands do not make is never "unstable")
