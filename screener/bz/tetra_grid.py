@@ -125,13 +125,13 @@ class _RowWindow:
         a1, a2, a3, a4, i1, i3, p0, p1, p2, p3, w = self.arrays
         # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them)
         inside = a4 > eps
-        n = self.below + float(w.sum() - w @ inside)
+        n = self.below + float(w[~inside].sum())
         s = 0.0
         m = (a1 < eps) & (a2 >= eps) & inside
         if m.any():
             x = eps - a1[m]
             x2i = x * x * i1[m]
-            n += float(x2i @ x)
+            n += float(np.sum(x2i * x))  # not a BLAS dot: its threads stall on a loaded machine
             s += 3.0 * float(x2i.sum())
         m = (a2 < eps) & (a3 >= eps) & inside
         if m.any():
@@ -142,7 +142,7 @@ class _RowWindow:
         if m.any():
             y = a4[m] - eps
             y2i = y * y * i3[m]
-            n += float(w[m].sum()) - float(y2i @ y)
+            n += float(w[m].sum()) - float(np.sum(y2i * y))
             s += 3.0 * float(y2i.sum())
         return n, s
 
