@@ -14,8 +14,7 @@ from screener.bz.tetrahedron import (
     _tet_corner_dos,
     _tet_count,
     _tet_dos,
-    _tet_weights,
-    _tet_weights_blochl,
+    _tet_weights_at,
     _tetra_offsets,
 )
 from screener.errors import ParameterError
@@ -199,10 +198,16 @@ class _TetrahedronGrid:
         """Compute the row extremes of those of ``bands`` not done yet, in one pass."""
         todo = [b for b in bands if self._rows_of_band[b] is None]
         if todo and self.mult is not None:  # distinct tetrahedra: gather their corners
-            for b in todo:  # loop over bands only
-                c = [self._bands[b][col] for col in self._corner_cols]
-                self._rows_of_band[b] = (np.minimum(np.minimum(c[0], c[1]), np.minimum(c[2], c[3])),
-                                         np.maximum(np.maximum(c[0], c[1]), np.maximum(c[2], c[3])))
+            buf = np.empty(self.n_unique)
+            for b in todo:  # loop over bands only; in place, as fresh temporaries of this size cost more
+                energy = self._bands[b]
+                lo = energy.take(self._corner_cols[0])
+                hi = lo.copy()
+                for col in self._corner_cols[1:]:  # three more corners
+                    np.take(energy, col, out=buf)
+                    np.minimum(lo, buf, out=lo)
+                    np.maximum(hi, buf, out=hi)
+                self._rows_of_band[b] = (lo, hi)
         elif todo:  # the grid's own tetrahedra: from the cubes they split
             e = self._bands[todo] if self._grid_to_ir is None else self._bands[todo][:, self._grid_to_ir]
             rmin, rmax = _row_extremes(e, self._mesh, self._flip)
@@ -418,7 +423,7 @@ class _TetrahedronGrid:
             t, band = tets[s:s + _CHUNK_ROWS], bands[s:s + _CHUNK_ROWS]
             corner = self.corner_ir[t]
             e, corner = _sort4_stable(self._bands[band[:, None], corner], corner)
-            w = _tet_weights_blochl(e, eps, h) if blochl else _tet_weights(e, eps)
+            w = _tet_weights_at(e, eps, h, blochl)
             if self.mult is not None:
                 w *= self.mult[t][:, None]
             for b, first, end in zip(cross, ends - sizes, ends):  # bands only: each band's rows are contiguous
@@ -429,8 +434,14 @@ class _TetrahedronGrid:
 
     def _corner_sum(self, sel: np.ndarray) -> np.ndarray:
         """(M,) grid tetrahedra among the selected rows ``sel`` (U,) bool having each irreducible point as a corner."""
-        w = None if self.mult is None else np.repeat(self.mult[sel], 4)
-        return np.bincount(self.corner_ir[sel].ravel(), weights=w, minlength=self.n_ir)
+        if self.mult is None:
+            return np.bincount(self.corner_ir[sel].ravel(), minlength=self.n_ir)
+        idx = np.flatnonzero(sel)
+        w = self.mult.take(idx)
+        out = np.bincount(self._corner_cols[0].take(idx), weights=w, minlength=self.n_ir)
+        for col in self._corner_cols[1:]:  # four corners, not k-points
+            out += np.bincount(col.take(idx), weights=w, minlength=self.n_ir)
+        return out
 
     # ------------------------------------------------------------------------------------------ DOS
     def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):

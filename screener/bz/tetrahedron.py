@@ -134,6 +134,73 @@ def _tet_weights_blochl(e, eps, h):
     return _tet_weights(e, eps) + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
 
 
+def _tet_weights_at(e, eps: float, h: float = 0.0, blochl: bool = False) -> np.ndarray:
+    """``_tet_weights_blochl(e, eps, h)`` (``blochl``) or ``_tet_weights(e, eps)`` for one energy ``eps``, the same
+    formulas evaluated piece by piece on contiguous columns (one classification per energy, index gathers)."""
+    n = len(e)
+    cols = [np.ascontiguousarray(e[:, i]) for i in range(4)]
+
+    def piece(x):  # 1: ε1 < x ≤ ε2, 2: ε2 < x ≤ ε3, 3: ε3 < x < ε4, else 4 if x ≥ ε4, else 0 (as in _pieces)
+        p = (cols[0] < x).view(np.int8) + (cols[1] < x).view(np.int8)
+        p += (cols[2] < x).view(np.int8)
+        p[(cols[3] <= x) & ((p == 3) | (p == 0))] = 4
+        return p
+
+    w = np.zeros((n, 4))
+    p = piece(eps)
+    w[p == 4] = 0.25
+    for k in (1, 2, 3):
+        idx = np.flatnonzero(p == k)
+        if not len(idx):
+            continue
+        a1, a2, a3, a4 = (c.take(idx) for c in cols)
+        if k == 1:
+            x = eps - a1
+            d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
+            c = 0.25 * x**3 / (d21 * d31 * d41)
+            w[idx] = np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31,
+                               c * x / d41], 1)
+        elif k == 2:
+            d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
+            x1, x2, y3, y4 = eps - a1, eps - a2, a3 - eps, a4 - eps
+            k1 = 0.25 * x1**2 / (d41 * d31)
+            k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
+            k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
+            w[idx] = np.stack([
+                k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
+                k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
+                (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
+                (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
+            ], 1)
+        else:
+            y = a4 - eps
+            d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
+            c = 0.25 * y**3 / (d41 * d42 * d43)
+            w[idx] = np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
+                               0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
+    if not blochl:
+        return w
+    d_lo, d_hi = np.zeros(n), np.zeros(n)
+    for x, out in ((eps - h, d_lo), (eps + h, d_hi)):  # _tet_dos at eps ∓ h
+        p = piece(x)
+        for k in (1, 2, 3):
+            idx = np.flatnonzero(p == k)
+            if not len(idx):
+                continue
+            a1, a2, a3, a4 = (c.take(idx) for c in cols)
+            if k == 1:
+                out[idx] = 3 * (x - a1) ** 2 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
+            elif k == 2:
+                y = x - a2
+                d21, d31, d41, d32, d42 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2
+                out[idx] = (3 * d21 + 6 * y - 3 * (d31 + d42) / (d32 * d42) * y**2) / (d31 * d41)
+            else:
+                out[idx] = 3 * (a4 - x) ** 2 / ((a4 - a1) * (a4 - a2) * (a4 - a3))
+    d_f = 0.5 * (d_lo + d_hi)
+    # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
+    return w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+
+
 def _tet_corner_dos(e, eps):
     """(n, 4) DOS carried by each sorted corner per unit volume fraction (sums to ``_tet_dos``).
 
