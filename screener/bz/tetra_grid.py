@@ -122,26 +122,31 @@ class _RowWindow:
     def count_slope(self, eps: float) -> tuple[float, float]:
         """(rows below eps counting partial ones fractionally, d/dε of that), rows per eV."""
         a1, a2, a3, a4, i1, i3, p0, p1, p2, p3, w = self.arrays
-        # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them)
-        inside = a4 > eps
-        n = self.below + float(w[~inside].sum())
+        # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them);
+        # piece k holds ε_k < eps ≤ ε_k+1, each gathered by index
+        done = a4 <= eps
+        n = self.below + float(np.sum(w, where=done))
+        piece = (a1 < eps).view(np.int8) + (a2 < eps).view(np.int8)
+        piece += (a3 < eps).view(np.int8)
+        piece[done] = 0
         s = 0.0
-        m = (a1 < eps) & (a2 >= eps) & inside
-        if m.any():
-            x = eps - a1[m]
-            x2i = x * x * i1[m]
+        m = np.flatnonzero(piece == 1)
+        if len(m):
+            x = eps - a1.take(m)
+            x2i = x * x * i1.take(m)
             n += float(np.sum(x2i * x))  # not a BLAS dot: its threads stall on a loaded machine
             s += 3.0 * float(x2i.sum())
-        m = (a2 < eps) & (a3 >= eps) & inside
-        if m.any():
-            x = eps - a2[m]
-            n += float(np.sum(p0[m] + x * (p1[m] + x * (p2[m] - x * p3[m]))))
-            s += float(np.sum(p1[m] + x * (2.0 * p2[m] - 3.0 * x * p3[m])))
-        m = (a3 < eps) & inside
-        if m.any():
-            y = a4[m] - eps
-            y2i = y * y * i3[m]
-            n += float(w[m].sum()) - float(np.sum(y2i * y))
+        m = np.flatnonzero(piece == 2)
+        if len(m):
+            x = eps - a2.take(m)
+            q1, q2, q3 = p1.take(m), p2.take(m), p3.take(m)
+            n += float(np.sum(p0.take(m) + x * (q1 + x * (q2 - x * q3))))
+            s += float(np.sum(q1 + x * (2.0 * q2 - 3.0 * x * q3)))
+        m = np.flatnonzero(piece == 3)
+        if len(m):
+            y = a4.take(m) - eps
+            y2i = y * y * i3.take(m)
+            n += float(w.take(m).sum()) - float(np.sum(y2i * y))
             s += 3.0 * float(y2i.sum())
         return n, s
 
@@ -265,10 +270,12 @@ class _TetrahedronGrid:
             tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
             if self.mult is None:
                 below += int(np.count_nonzero(rmax <= lo))
+                parts.append(self._bands[b][self.corner_ir[tets]])
             else:
-                below += float(self.mult[rmax <= lo].sum())
-                mult.append(self.mult[tets])
-            parts.append(self._bands[b][self.corner_ir[tets]])
+                below += float(np.sum(self.mult, where=rmax <= lo))
+                mult.append(self.mult.take(tets))
+                energy = self._bands[b]
+                parts.append(np.stack([energy.take(col.take(tets)) for col in self._corner_cols], 1))
         e = np.concatenate(parts) if parts else np.empty((0, 4))
         return _RowWindow(_sort4(e), below, np.concatenate(mult) if mult else None)
 
