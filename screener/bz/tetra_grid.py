@@ -8,6 +8,8 @@ from screener.bz.common import _CHUNK_ROWS, _gap, _pair_blocks, _solve_count
 from screener.bz.kmesh import IrreducibleMesh
 from screener.bz.tetrahedron import (
     _corner_table,
+    _cube_corner_index,
+    _path_corners,
     _row_extremes,
     _sort4,
     _sort4_stable,
@@ -58,27 +60,41 @@ def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) ->
         raise ParameterError(f"k-mesh grid addresses do not cover the {tuple(mesh)} grid once each")
     grid_to_ir = np.empty(n_full, dtype=np.int64)  # grid point (row-major index) -> irreducible point
     grid_to_ir[flat] = mapping.astype(np.int64)
-    table = _corner_table(mesh, flip)
     t = _MeshTables()
     t.key, t.mapping, t.grid_address = key, mapping.copy(), addr.copy()
-    t.n_tet = len(table)
+    t.n_tet = 6 * n_full
     t.k_count = np.bincount(grid_to_ir, minlength=n_ir)
     t.mult = None
     if n_ir == n_full and np.array_equal(grid_to_ir, np.arange(n_full)):
-        t.grid_to_ir, t.corner_ir = None, table
+        t.grid_to_ir, t.corner_ir = None, _corner_table(mesh, flip)
     else:
-        t.grid_to_ir, t.corner_ir = grid_to_ir, grid_to_ir[table]
+        t.grid_to_ir, t.corner_ir = grid_to_ir, None
         # Tetrahedra whose corners are the same irreducible points carry the same energies in every band, so one
         # of each, weighted by how many it stands for, gives the same sums; corners in ascending point order.
         if float(n_ir) ** 4 < 2.0**62:
-            c = _sort4(t.corner_ir)
-            code = ((c[0] * n_ir + c[1]) * n_ir + c[2]) * n_ir + c[3]
+            # (8, N) irreducible point at each cube corner of each grid point (32-bit: half the memory traffic)
+            cube_ir = grid_to_ir.astype(np.int32)[_cube_corner_index(mesh)]
+            bits = _path_corners(flip)
+            c = [np.concatenate([cube_ir[bits[j, k]] for j in range(6)]) for k in range(4)]  # row jN + p
+            del cube_ir
+            tmp = np.empty_like(c[0])
+            for i, j in ((0, 1), (2, 3), (0, 2), (1, 3), (1, 2)):  # sort the four corner columns (as _sort4)
+                np.minimum(c[i], c[j], out=tmp)
+                np.maximum(c[i], c[j], out=c[j])
+                c[i], tmp = tmp, c[i]
+            code = c[0].astype(np.int64)
+            for k in (1, 2, 3):  # four corners, not k-points
+                code *= n_ir
+                code += c[k]
+            del c, tmp
             code, counts = np.unique(code, return_counts=True)
             if len(code) < 0.7 * t.n_tet:  # else not worth the indirection
                 corner = np.empty((len(code), 4), dtype=np.int64)
                 for j in (3, 2, 1, 0):  # four corners, not k-points
                     code, corner[:, j] = np.divmod(code, n_ir)
                 t.corner_ir, t.mult = corner, counts.astype(float)
+        if t.corner_ir is None:
+            t.corner_ir = grid_to_ir[_corner_table(mesh, flip)]
     t.corner_ir.setflags(write=False)
     t.corner_cols = None if t.mult is None else [np.ascontiguousarray(t.corner_ir[:, j]) for j in range(4)]
     _TABLE_CACHE.append(t)

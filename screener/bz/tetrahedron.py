@@ -247,20 +247,41 @@ def _tet_corner_dos(e, eps):
 
 
 
+@lru_cache(maxsize=4)
+def _cube_corner_index(mesh: tuple[int, int, int]) -> np.ndarray:
+    """(8, N) row-major grid index of cube corner c (offset bits ``_CORNER_BITS[c]``) of every grid point p, wrapped
+    periodically; each is an outer sum of three wrapped axis ranges. Kept between calls (read-only)."""
+    m = tuple(int(x) for x in mesh)
+    out = np.empty((8,) + m, dtype=np.int64)
+    for c in range(8):  # eight cube corners, not k-points
+        x, y, z = (int(v) for v in _CORNER_BITS[c])
+        i0 = (np.arange(m[0]) + x) % m[0]
+        i1 = (np.arange(m[1]) + y) % m[1]
+        i2 = (np.arange(m[2]) + z) % m[2]
+        np.add((i0[:, None] * m[1] + i1[None, :])[:, :, None] * m[2], i2[None, None, :], out=out[c])
+    out = out.reshape(8, -1)
+    out.setflags(write=False)
+    return out
+
+
+def _path_corners(flip) -> np.ndarray:
+    """(6, 4) cube-corner number of each corner of the six tetrahedra split along the diagonal from ``flip``."""
+    return (_PATHS ^ np.asarray(flip, dtype=int)[None, None, :]) @ np.array([1, 2, 4])
+
+
 @lru_cache(maxsize=8)
 def _corner_table(mesh: tuple[int, int, int], flip: tuple[int, int, int]) -> np.ndarray:
     """(6N, 4) row-major grid index of every tetrahedron corner; tetrahedron jN + p is path j from point p.
 
     Depends only on the mesh and the chosen diagonal, so it is kept between calls (read-only).
     """
-    offsets = np.bitwise_xor(_PATHS, np.asarray(flip, dtype=int)[None, None, :])  # (6, 4, 3)
-    n_full = int(np.prod(mesh))
-    base = np.unravel_index(np.arange(n_full), mesh)
-    table = np.zeros((6, n_full, 4), dtype=np.int64)
-    for axis in range(3):  # three axes, not k-points
-        coord = np.mod(base[axis][None, :, None] + offsets[:, None, :, axis], mesh[axis])
-        table *= mesh[axis]
-        table += coord
+    cube = _cube_corner_index(tuple(int(x) for x in mesh))
+    bits = _path_corners(flip)
+    n_full = cube.shape[1]
+    table = np.empty((6, n_full, 4), dtype=np.int64)
+    for j in range(6):  # six tetrahedra of a cube
+        for c in range(4):  # four corners
+            table[j, :, c] = cube[bits[j, c]]
     table = table.reshape(-1, 4)
     table.setflags(write=False)
     return table
