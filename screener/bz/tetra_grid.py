@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 
 from screener.bz.common import _CHUNK_ROWS, _gap, _pair_blocks, _solve_count
@@ -31,18 +33,31 @@ class _MeshTables:
 
 
 #: Tables of the last few meshes: a screen integrates many models on one mesh and symmetry, and the tables cost
-#: more than an integration. A hit needs equal mapping and grid addresses (compared in full, not hashed).
+#: more than an integration. A hit needs equal mapping and grid addresses (compared in full, not hashed). The
+#: tables are read-only; the lock guards the list when integrations run in threads.
 _TABLE_CACHE: list[_MeshTables] = []
 _TABLE_CACHE_SIZE = 4
+_TABLE_LOCK = threading.Lock()
 
 
 def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) -> _MeshTables:
+    """The tables of ``kmesh`` split along the diagonal from ``flip``: from the cache, or built and cached."""
     mapping, addr = np.asarray(kmesh.mapping), np.asarray(kmesh.grid_address)
     key = (mesh, flip, n_ir, mapping.shape, addr.shape)
-    for i, t in enumerate(_TABLE_CACHE):
-        if t.key == key and np.array_equal(t.mapping, mapping) and np.array_equal(t.grid_address, addr):
-            _TABLE_CACHE.append(_TABLE_CACHE.pop(i))
-            return t
+    with _TABLE_LOCK:
+        for i, t in enumerate(_TABLE_CACHE):
+            if t.key == key and np.array_equal(t.mapping, mapping) and np.array_equal(t.grid_address, addr):
+                _TABLE_CACHE.append(_TABLE_CACHE.pop(i))
+                return t
+    t = _build_mesh_tables(mapping, addr, mesh, flip, n_ir)
+    t.key = key
+    with _TABLE_LOCK:
+        _TABLE_CACHE.append(t)
+        del _TABLE_CACHE[:-_TABLE_CACHE_SIZE]
+    return t
+
+
+def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip: tuple, n_ir: int) -> _MeshTables:
     n_full = int(np.prod(mesh))
     m = np.asarray(mesh, dtype=np.int64)
     if len(mapping) != n_full or len(addr) != n_full:
@@ -61,7 +76,7 @@ def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) ->
     grid_to_ir = np.empty(n_full, dtype=np.int64)  # grid point (row-major index) -> irreducible point
     grid_to_ir[flat] = mapping.astype(np.int64)
     t = _MeshTables()
-    t.key, t.mapping, t.grid_address = key, mapping.copy(), addr.copy()
+    t.mapping, t.grid_address = mapping.copy(), addr.copy()
     t.n_tet = 6 * n_full
     t.k_count = np.bincount(grid_to_ir, minlength=n_ir)
     t.mult = None
@@ -95,10 +110,10 @@ def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) ->
                 t.corner_ir, t.mult = corner, counts.astype(float)
         if t.corner_ir is None:
             t.corner_ir = grid_to_ir[_corner_table(mesh, flip)]
-    t.corner_ir.setflags(write=False)
     t.corner_cols = None if t.mult is None else [np.ascontiguousarray(t.corner_ir[:, j]) for j in range(4)]
-    _TABLE_CACHE.append(t)
-    del _TABLE_CACHE[:-_TABLE_CACHE_SIZE]
+    for a in [t.mapping, t.grid_address, t.grid_to_ir, t.corner_ir, t.mult, t.k_count] + (t.corner_cols or []):
+        if a is not None:
+            a.setflags(write=False)
     return t
 
 
