@@ -185,7 +185,9 @@ class _RowWindow:
 class _TetrahedronGrid:
     """Band × tetrahedron rows of the full mesh, ready for repeated integration.
 
-    Row r = b * T + t is band b on tetrahedron t. For every row only its lowest and highest corner energy is
+    Row r = b * U + t is band b on tetrahedron t of the U distinct ones: on a symmetry-reduced mesh, grid
+    tetrahedra with the same four irreducible corners are held once with their multiplicity ``mult`` (they carry
+    the same energies in every band), otherwise U = T, the grid's own tetrahedra in grid order. For every row only its lowest and highest corner energy is
     needed to classify it: at any energy ε almost all rows lie wholly below (count 1, weight ¼ per corner) or
     wholly above (nothing), and only the few straddling ε need their four corners gathered, sorted and put through
     Blöchl's formulas. Whole bands are classified first from their extremes, and the row extremes of a band are
