@@ -2,23 +2,119 @@
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 
 from screener.bz.common import _CHUNK_ROWS, _gap, _pair_blocks, _solve_count
 from screener.bz.kmesh import IrreducibleMesh
 from screener.bz.tetrahedron import (
     _corner_table,
+    _cube_corner_index,
+    _path_corners,
     _row_extremes,
     _sort4,
     _sort4_stable,
     _tet_corner_dos,
     _tet_count,
     _tet_dos,
-    _tet_weights,
-    _tet_weights_blochl,
+    _tet_weights_at,
     _tetra_offsets,
 )
 from screener.errors import ParameterError
+
+
+class _MeshTables:
+    """What a tetrahedron grid needs of its k-mesh alone (not of the energies): grid → irreducible point, the
+    distinct tetrahedra with their multiplicities, grid points per irreducible point."""
+
+    __slots__ = ("key", "mapping", "grid_address", "grid_to_ir", "corner_ir", "corner_cols", "mult", "n_tet",
+                 "k_count")
+
+
+#: Tables of the last few meshes: a screen integrates many models on one mesh and symmetry, and the tables cost
+#: more than an integration. A hit needs equal mapping and grid addresses (compared in full, not hashed). The
+#: tables are read-only; the lock guards the list when integrations run in threads.
+_TABLE_CACHE: list[_MeshTables] = []
+_TABLE_CACHE_SIZE = 4
+_TABLE_LOCK = threading.Lock()
+
+
+def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) -> _MeshTables:
+    """The tables of ``kmesh`` split along the diagonal from ``flip``: from the cache, or built and cached."""
+    mapping, addr = np.asarray(kmesh.mapping), np.asarray(kmesh.grid_address)
+    key = (mesh, flip, n_ir, mapping.shape, addr.shape)
+    with _TABLE_LOCK:
+        for i, t in enumerate(_TABLE_CACHE):
+            if t.key == key and np.array_equal(t.mapping, mapping) and np.array_equal(t.grid_address, addr):
+                _TABLE_CACHE.append(_TABLE_CACHE.pop(i))
+                return t
+    t = _build_mesh_tables(mapping, addr, mesh, flip, n_ir)
+    t.key = key
+    with _TABLE_LOCK:
+        _TABLE_CACHE.append(t)
+        del _TABLE_CACHE[:-_TABLE_CACHE_SIZE]
+    return t
+
+
+def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip: tuple, n_ir: int) -> _MeshTables:
+    n_full = int(np.prod(mesh))
+    m = np.asarray(mesh, dtype=np.int64)
+    if len(mapping) != n_full or len(addr) != n_full:
+        raise ParameterError(
+            f"the tetrahedron method needs the full {tuple(mesh)} grid ({n_full} points), but the k-mesh holds "
+            f"{len(mapping)}; build it with screener.bz.kmesh.irreducible_mesh"
+        )
+    a = addr.astype(np.int64)
+    if a.size and a.min() >= -m.min() and a.max() < m.min():  # usual addresses: one wrap
+        a = a + m * (a < 0)
+    else:
+        a = np.mod(a, m)
+    flat = (a[:, 0] * m[1] + a[:, 1]) * m[2] + a[:, 2]
+    if np.any(np.bincount(flat, minlength=n_full) != 1):
+        raise ParameterError(f"k-mesh grid addresses do not cover the {tuple(mesh)} grid once each")
+    grid_to_ir = np.empty(n_full, dtype=np.int64)  # grid point (row-major index) -> irreducible point
+    grid_to_ir[flat] = mapping.astype(np.int64)
+    t = _MeshTables()
+    t.mapping, t.grid_address = mapping.copy(), addr.copy()
+    t.n_tet = 6 * n_full
+    t.k_count = np.bincount(grid_to_ir, minlength=n_ir)
+    t.mult = None
+    if n_ir == n_full and np.array_equal(grid_to_ir, np.arange(n_full)):
+        t.grid_to_ir, t.corner_ir = None, _corner_table(mesh, flip)
+    else:
+        t.grid_to_ir, t.corner_ir = grid_to_ir, None
+        # Tetrahedra whose corners are the same irreducible points carry the same energies in every band, so one
+        # of each, weighted by how many it stands for, gives the same sums; corners in ascending point order.
+        if float(n_ir) ** 4 < 2.0**62:
+            # (8, N) irreducible point at each cube corner of each grid point (32-bit: half the memory traffic)
+            cube_ir = grid_to_ir.astype(np.int32)[_cube_corner_index(mesh)]
+            bits = _path_corners(flip)
+            c = [np.concatenate([cube_ir[bits[j, k]] for j in range(6)]) for k in range(4)]  # row jN + p
+            del cube_ir
+            tmp = np.empty_like(c[0])
+            for i, j in ((0, 1), (2, 3), (0, 2), (1, 3), (1, 2)):  # sort the four corner columns (as _sort4)
+                np.minimum(c[i], c[j], out=tmp)
+                np.maximum(c[i], c[j], out=c[j])
+                c[i], tmp = tmp, c[i]
+            code = c[0].astype(np.int64)
+            for k in (1, 2, 3):  # four corners, not k-points
+                code *= n_ir
+                code += c[k]
+            del c, tmp
+            code, counts = np.unique(code, return_counts=True)
+            if len(code) < 0.7 * t.n_tet:  # else not worth the indirection
+                corner = np.empty((len(code), 4), dtype=np.int64)
+                for j in (3, 2, 1, 0):  # four corners, not k-points
+                    code, corner[:, j] = np.divmod(code, n_ir)
+                t.corner_ir, t.mult = corner, counts.astype(float)
+        if t.corner_ir is None:
+            t.corner_ir = grid_to_ir[_corner_table(mesh, flip)]
+    t.corner_cols = None if t.mult is None else [np.ascontiguousarray(t.corner_ir[:, j]) for j in range(4)]
+    for a in [t.mapping, t.grid_address, t.grid_to_ir, t.corner_ir, t.mult, t.k_count] + (t.corner_cols or []):
+        if a is not None:
+            a.setflags(write=False)
+    return t
 
 
 class _RowWindow:
@@ -28,14 +124,16 @@ class _RowWindow:
     (1994), App. B); the piece coefficients are formed once, so each evaluation is a few passes over the rows.
     """
 
-    def __init__(self, cols: list[np.ndarray], below: int):
+    def __init__(self, cols: list[np.ndarray], below: float, mult: np.ndarray | None = None):
         self.below = below  # rows wholly at or below the bracket's lower end
         a1, a2, a3, a4 = cols
+        # each row stands for ``mult`` grid rows (None: one): the multiplicity is folded into the coefficients
+        w = np.ones(len(a1)) if mult is None else mult
         with np.errstate(divide="ignore", invalid="ignore"):  # coefficients of pieces a row never enters
             d21, d31, d41, d32, d42, d43 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2, a4 - a3
-            q = 1.0 / (d31 * d41)
-            self.arrays = [a1, a2, a3, a4, 1.0 / (d21 * d31 * d41), 1.0 / (d41 * d42 * d43),
-                           d21 * d21 * q, 3 * d21 * q, 3 * q, (d31 + d42) / (d32 * d42) * q]
+            q = w / (d31 * d41)
+            self.arrays = [a1, a2, a3, a4, w / (d21 * d31 * d41), w / (d41 * d42 * d43),
+                           d21 * d21 * q, 3 * d21 * q, 3 * q, (d31 + d42) / (d32 * d42) * q, w]
 
     def __len__(self) -> int:
         return len(self.arrays[0])
@@ -48,33 +146,38 @@ class _RowWindow:
         if n_keep > 0.7 * len(self):  # not worth the copies yet
             return self
         new = object.__new__(_RowWindow)
-        new.below = self.below + int(np.count_nonzero(a4 <= lo))
+        new.below = self.below + float(self.arrays[10][a4 <= lo].sum())
         new.arrays = [x[keep] for x in self.arrays]
         return new
 
     def count_slope(self, eps: float) -> tuple[float, float]:
         """(rows below eps counting partial ones fractionally, d/dε of that), rows per eV."""
-        a1, a2, a3, a4, i1, i3, p0, p1, p2, p3 = self.arrays
-        # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them)
-        inside = a4 > eps
-        n = self.below + float(len(a4) - np.count_nonzero(inside))
+        a1, a2, a3, a4, i1, i3, p0, p1, p2, p3, w = self.arrays
+        # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them);
+        # piece k holds ε_k < eps ≤ ε_k+1, each gathered by index
+        done = a4 <= eps
+        n = self.below + float(np.sum(w, where=done))
+        piece = (a1 < eps).view(np.int8) + (a2 < eps).view(np.int8)
+        piece += (a3 < eps).view(np.int8)
+        piece[done] = 0
         s = 0.0
-        m = (a1 < eps) & (a2 >= eps) & inside
-        if m.any():
-            x = eps - a1[m]
-            x2i = x * x * i1[m]
-            n += float(x2i @ x)
+        m = np.flatnonzero(piece == 1)
+        if len(m):
+            x = eps - a1.take(m)
+            x2i = x * x * i1.take(m)
+            n += float(np.sum(x2i * x))  # not a BLAS dot: its threads stall on a loaded machine
             s += 3.0 * float(x2i.sum())
-        m = (a2 < eps) & (a3 >= eps) & inside
-        if m.any():
-            x = eps - a2[m]
-            n += float(np.sum(p0[m] + x * (p1[m] + x * (p2[m] - x * p3[m]))))
-            s += float(np.sum(p1[m] + x * (2.0 * p2[m] - 3.0 * x * p3[m])))
-        m = (a3 < eps) & inside
-        if m.any():
-            y = a4[m] - eps
-            y2i = y * y * i3[m]
-            n += float(np.count_nonzero(m)) - float(y2i @ y)
+        m = np.flatnonzero(piece == 2)
+        if len(m):
+            x = eps - a2.take(m)
+            q1, q2, q3 = p1.take(m), p2.take(m), p3.take(m)
+            n += float(np.sum(p0.take(m) + x * (q1 + x * (q2 - x * q3))))
+            s += float(np.sum(q1 + x * (2.0 * q2 - 3.0 * x * q3)))
+        m = np.flatnonzero(piece == 3)
+        if len(m):
+            y = a4.take(m) - eps
+            y2i = y * y * i3.take(m)
+            n += float(w.take(m).sum()) - float(np.sum(y2i * y))
             s += 3.0 * float(y2i.sum())
         return n, s
 
@@ -82,7 +185,9 @@ class _RowWindow:
 class _TetrahedronGrid:
     """Band × tetrahedron rows of the full mesh, ready for repeated integration.
 
-    Row r = b * T + t is band b on tetrahedron t. For every row only its lowest and highest corner energy is
+    Row r = b * U + t is band b on tetrahedron t of the U distinct ones: on a symmetry-reduced mesh, grid
+    tetrahedra with the same four irreducible corners are held once with their multiplicity ``mult`` (they carry
+    the same energies in every band), otherwise U = T, the grid's own tetrahedra in grid order. For every row only its lowest and highest corner energy is
     needed to classify it: at any energy ε almost all rows lie wholly below (count 1, weight ¼ per corner) or
     wholly above (nothing), and only the few straddling ε need their four corners gathered, sorted and put through
     Blöchl's formulas. Whole bands are classified first from their extremes, and the row extremes of a band are
@@ -91,43 +196,28 @@ class _TetrahedronGrid:
 
     def __init__(self, eigs_ir: np.ndarray, kmesh: IrreducibleMesh, reciprocal_A=None):
         mesh = np.asarray(kmesh.mesh, dtype=int)
-        n_full = int(np.prod(mesh))
         nb = eigs_ir.shape[1]
-        if len(kmesh.mapping) != n_full or len(kmesh.grid_address) != n_full:
-            raise ParameterError(
-                f"the tetrahedron method needs the full {tuple(mesh)} grid ({n_full} points), but the k-mesh holds "
-                f"{len(kmesh.mapping)}; build it with screener.bz.kmesh.irreducible_mesh"
-            )
         if eigs_ir.shape[0] != len(kmesh.ir_index):
             raise ParameterError(
                 f"got eigenvalues at {eigs_ir.shape[0]} k-points but the mesh has {len(kmesh.ir_index)} irreducible "
                 "points; compute them at kmesh.kfrac"
             )
-        addr = np.asarray(kmesh.grid_address, dtype=np.int64)
-        if addr.size and addr.min() >= -mesh.min() and addr.max() < mesh.min():  # usual addresses: one wrap
-            addr = addr + mesh * (addr < 0)
-        else:
-            addr = np.mod(addr, mesh)
-        flat = (addr[:, 0] * mesh[1] + addr[:, 1]) * mesh[2] + addr[:, 2]
-        if np.any(np.bincount(flat, minlength=n_full) != 1):
-            raise ParameterError(f"k-mesh grid addresses do not cover the {tuple(mesh)} grid once each")
-        # grid point (row-major index) -> irreducible point
-        grid_to_ir = np.empty(n_full, dtype=np.int64)
-        grid_to_ir[flat] = np.asarray(kmesh.mapping, dtype=np.int64)
         self._flip = tuple(int(x) for x in _tetra_offsets(mesh, reciprocal_A)[0, 0])  # path 0 starts at the flip
         self._mesh = tuple(int(m) for m in mesh)
-        table = _corner_table(self._mesh, self._flip)
-        identity = len(grid_to_ir) == eigs_ir.shape[0] and np.array_equal(grid_to_ir, np.arange(n_full))
-        self._grid_to_ir = None if identity else grid_to_ir
-        self.corner_ir = table if identity else grid_to_ir[table]  # (T, 4) irreducible index of each corner
-        self.n_tet = len(self.corner_ir)
+        tables = _mesh_tables(kmesh, self._mesh, self._flip, eigs_ir.shape[0])
+        self._grid_to_ir = tables.grid_to_ir
+        self.corner_ir = tables.corner_ir  # (U, 4) irreducible index of each corner of each distinct tetrahedron
+        self.mult = tables.mult  # (U,) grid tetrahedra each distinct one stands for; None: one each, grid order
+        self.n_tet = tables.n_tet  # tetrahedra of the full grid
+        self.n_unique = len(self.corner_ir)
+        self._corner_cols = tables.corner_cols  # the four columns of corner_ir, each contiguous (or None)
         self.n_bands = nb
         self.n_ir = eigs_ir.shape[0]
-        self.n_rows = self.n_tet * nb
+        self.n_rows = self.n_tet * nb  # rows of the full grid
         self.volume = 1.0 / self.n_tet  # volume fraction of one tetrahedron
         self.eigs_ir = eigs_ir
         self._bands = np.ascontiguousarray(eigs_ir.T)  # (nb, M): one band's energies, contiguous
-        self.k_count = np.bincount(grid_to_ir, minlength=self.n_ir)  # grid points per irreducible point
+        self.k_count = tables.k_count  # grid points per irreducible point
         # every irreducible point is the image of some grid point, so band extremes equal row extremes
         self.band_min = self._bands.min(axis=1)
         self.band_max = self._bands.max(axis=1)
@@ -137,7 +227,7 @@ class _TetrahedronGrid:
 
     # ------------------------------------------------------------------------------------------ row access
     def band_rows(self, b: int) -> tuple[np.ndarray, np.ndarray]:
-        """(T,) lowest and (T,) highest corner energy of band ``b`` on every tetrahedron (computed once)."""
+        """(U,) lowest and (U,) highest corner energy of band ``b`` on every distinct tetrahedron (computed once)."""
         if self._rows_of_band[b] is None:
             self._prepare_rows([b])
         return self._rows_of_band[b]
@@ -145,26 +235,54 @@ class _TetrahedronGrid:
     def _prepare_rows(self, bands) -> None:
         """Compute the row extremes of those of ``bands`` not done yet, in one pass."""
         todo = [b for b in bands if self._rows_of_band[b] is None]
-        if todo:
+        if todo and self.mult is not None:  # distinct tetrahedra: gather their corners
+            buf = np.empty(self.n_unique)
+            for b in todo:  # loop over bands only; in place, as fresh temporaries of this size cost more
+                energy = self._bands[b]
+                lo = energy.take(self._corner_cols[0])
+                hi = lo.copy()
+                for col in self._corner_cols[1:]:  # three more corners
+                    np.take(energy, col, out=buf)
+                    np.minimum(lo, buf, out=lo)
+                    np.maximum(hi, buf, out=hi)
+                self._rows_of_band[b] = (lo, hi)
+        elif todo:  # the grid's own tetrahedra: from the cubes they split
             e = self._bands[todo] if self._grid_to_ir is None else self._bands[todo][:, self._grid_to_ir]
             rmin, rmax = _row_extremes(e, self._mesh, self._flip)
             for i, b in enumerate(todo):
                 self._rows_of_band[b] = (rmin[i], rmax[i])
 
+    def _distinct_rows(self) -> tuple[np.ndarray, np.ndarray]:
+        """(U·nb,) lowest and highest corner energy of every distinct row, row b·U + t."""
+        self._prepare_rows(range(self.n_bands))
+        return (np.concatenate([self.band_rows(b)[0] for b in range(self.n_bands)]),
+                np.concatenate([self.band_rows(b)[1] for b in range(self.n_bands)]))
+
+    def _grid_rows(self) -> tuple[np.ndarray, np.ndarray]:
+        """(T·nb,) lowest and highest corner energy of every row of the full grid, row b·T + t."""
+        if self.mult is None:
+            return self._distinct_rows()
+        rmin, rmax = _row_extremes(self._bands[:, self._grid_to_ir], self._mesh, self._flip)
+        return rmin.reshape(-1), rmax.reshape(-1)
+
     @property
     def row_min(self) -> np.ndarray:
-        """(T·nb,) lowest corner energy of every row, row b·T + t."""
-        self._prepare_rows(range(self.n_bands))
-        return np.concatenate([self.band_rows(b)[0] for b in range(self.n_bands)])
+        """(T·nb,) lowest corner energy of every row of the full grid, row b·T + t."""
+        return self._grid_rows()[0]
 
     @property
     def row_max(self) -> np.ndarray:
-        """(T·nb,) highest corner energy of every row, row b·T + t."""
-        return np.concatenate([self.band_rows(b)[1] for b in range(self.n_bands)])
+        """(T·nb,) highest corner energy of every row of the full grid, row b·T + t."""
+        return self._grid_rows()[1]
+
+    @property
+    def row_mult(self) -> np.ndarray | None:
+        """(U·nb,) grid rows each row stands for, or None when each is one grid row."""
+        return None if self.mult is None else np.tile(self.mult, self.n_bands)
 
     def _sorted_rows(self, rows: np.ndarray):
         """(n, 4) ascending corner energies of ``rows``, the irreducible point of each sorted slot, the band."""
-        band, tet = np.divmod(rows, self.n_tet)
+        band, tet = np.divmod(rows, self.n_unique)
         corner = self.corner_ir[tet]
         e = self.eigs_ir[corner, band[:, None]]
         # stable, so tied corners keep their path order (which corner gets which weight at a tie)
@@ -176,17 +294,23 @@ class _TetrahedronGrid:
 
         A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
         """
-        below, parts = 0, []
+        parts, mult = [], []
         cross = [b for b in range(self.n_bands) if self.band_max[b] > lo and self.band_min[b] <= hi]
         self._prepare_rows(cross)
-        below = self.n_tet * int(np.count_nonzero(self.band_max <= lo))
+        below = float(self.n_tet * int(np.count_nonzero(self.band_max <= lo)))
         for b in cross:  # loop over bands only
             rmin, rmax = self.band_rows(b)
             tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
-            below += int(np.count_nonzero(rmax <= lo))
-            parts.append(self._bands[b][self.corner_ir[tets]])
+            if self.mult is None:
+                below += int(np.count_nonzero(rmax <= lo))
+                parts.append(self._bands[b][self.corner_ir[tets]])
+            else:
+                below += float(np.sum(self.mult, where=rmax <= lo))
+                mult.append(self.mult.take(tets))
+                energy = self._bands[b]
+                parts.append(np.stack([energy.take(col.take(tets)) for col in self._corner_cols], 1))
         e = np.concatenate(parts) if parts else np.empty((0, 4))
-        return _RowWindow(_sort4(e), below)
+        return _RowWindow(_sort4(e), below, np.concatenate(mult) if mult else None)
 
     def count(self, eps: float) -> float:
         """States per cell (one spin) below eps."""
@@ -223,7 +347,12 @@ class _TetrahedronGrid:
             level = float(e[order[min(i, len(e) - 1)]])
         # energy change along the (flipped) main diagonal of a grid cube at the sampled points, candidate bands
         m = np.asarray(self._mesh)
-        pts = np.arange(0, len(self.k_count) if self._grid_to_ir is None else len(self._grid_to_ir), step)
+        n_grid = len(self.k_count) if self._grid_to_ir is None else len(self._grid_to_ir)
+        if self._grid_to_ir is not None:  # a reduced mesh: its grid is larger than the irreducible points sampled
+            step = max(1, -(-n_grid * len(cand) // 20000))
+            while np.gcd(step, m[2]) > 1:  # a stride sharing a factor with the fastest axis samples few lines of it
+                step += 1
+        pts = np.arange(0, n_grid, step)
         idx = np.unravel_index(pts, self._mesh)
         sign = 1 - 2 * np.asarray(self._flip)
         nxt = np.ravel_multi_index(tuple(np.mod(idx[a] + sign[a] * (m[a] > 1), m[a]) for a in range(3)),
@@ -301,7 +430,7 @@ class _TetrahedronGrid:
     # ------------------------------------------------------------------------------------------ occupations
     def occupations(self, eps: float, blochl: bool = True) -> np.ndarray:
         """(M, nb) one-spin occupation weights folded onto the irreducible points (Σ = count(eps))."""
-        nb, T = self.n_bands, self.n_tet
+        nb, U = self.n_bands, self.n_unique
         # Tetrahedra flattened along a single-point mesh direction have a DOS that jumps at a corner energy, and
         # E_F often sits exactly on one (e.g. at a folded band crossing on an even mesh): take the mean of the
         # two one-sided limits there. Elsewhere D_T is continuous and the mean equals the value.
@@ -318,12 +447,12 @@ class _TetrahedronGrid:
             rmin, rmax = self.band_rows(b)
             full = rmax <= eps - h
             n_full = int(np.count_nonzero(full))
-            if n_full == T:
+            if n_full == U:
                 acc[:, b] = 0.25 * corner_count
-            elif 2 * n_full >= T:
-                acc[:, b] = 0.25 * (corner_count - np.bincount(self.corner_ir[~full].ravel(), minlength=self.n_ir))
+            elif 2 * n_full >= U:
+                acc[:, b] = 0.25 * (corner_count - self._corner_sum(~full))
             elif n_full:
-                acc[:, b] = 0.25 * np.bincount(self.corner_ir[full].ravel(), minlength=self.n_ir)
+                acc[:, b] = 0.25 * self._corner_sum(full)
             tets.append(np.flatnonzero(~full & (rmin < eps + h)))
         # the straddling rows of all crossing bands go through the formulas together, in memory-bounded blocks
         sizes = [len(t) for t in tets]
@@ -334,12 +463,25 @@ class _TetrahedronGrid:
             t, band = tets[s:s + _CHUNK_ROWS], bands[s:s + _CHUNK_ROWS]
             corner = self.corner_ir[t]
             e, corner = _sort4_stable(self._bands[band[:, None], corner], corner)
-            w = _tet_weights_blochl(e, eps, h) if blochl else _tet_weights(e, eps)
+            w = _tet_weights_at(e, eps, h, blochl)
+            if self.mult is not None:
+                w *= self.mult[t][:, None]
             for b, first, end in zip(cross, ends - sizes, ends):  # bands only: each band's rows are contiguous
                 sl = slice(max(first, s) - s, min(end, s + len(t)) - s)
                 if sl.stop > sl.start:
                     acc[:, b] += np.bincount(corner[sl].ravel(), weights=w[sl].ravel(), minlength=self.n_ir)
         return self.volume * acc
+
+    def _corner_sum(self, sel: np.ndarray) -> np.ndarray:
+        """(M,) grid tetrahedra among the selected rows ``sel`` (U,) bool having each irreducible point as a corner."""
+        if self.mult is None:
+            return np.bincount(self.corner_ir[sel].ravel(), minlength=self.n_ir)
+        idx = np.flatnonzero(sel)
+        w = self.mult.take(idx)
+        out = np.bincount(self._corner_cols[0].take(idx), weights=w, minlength=self.n_ir)
+        for col in self._corner_cols[1:]:  # four corners, not k-points
+            out += np.bincount(col.take(idx), weights=w, minlength=self.n_ir)
+        return out
 
     # ------------------------------------------------------------------------------------------ DOS
     def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):
@@ -352,9 +494,11 @@ class _TetrahedronGrid:
         pdos = np.zeros((ne, nproj))
         # a row counts fully at energies ≥ its top corner; energies strictly inside (e1, e4) are evaluated as
         # (row, energy) pairs, processed in blocks of bounded pair count so memory stays bounded
-        lo = np.searchsorted(es, self.row_min, side="right")
-        hi = np.searchsorted(es, self.row_max, side="left")
-        below = np.bincount(hi, minlength=ne + 1)[:ne].cumsum().astype(float)
+        row_min, row_max = self._distinct_rows()
+        lo = np.searchsorted(es, row_min, side="right")
+        hi = np.searchsorted(es, row_max, side="left")
+        mult = self.row_mult
+        below = np.bincount(hi, weights=mult, minlength=ne + 1)[:ne].cumsum().astype(float)
         dos = np.zeros(ne)
         active = np.flatnonzero(hi > lo)
         for sub, eidx in _pair_blocks(lo[active], hi[active]):
@@ -363,15 +507,18 @@ class _TetrahedronGrid:
             e_blk, corner_blk, band_blk = self._sorted_rows(active[first:int(sub[-1]) + 1])
             loc = sub - first
             er, x = e_blk[loc], es[eidx]
-            below += np.bincount(eidx, weights=_tet_count(er, x), minlength=ne)
+            mw = 1.0 if mult is None else mult[active[sub]]
+            below += np.bincount(eidx, weights=mw * _tet_count(er, x), minlength=ne)
             if nproj:
                 cw = _tet_corner_dos(er, x)  # (p, 4)
+                if mult is not None:
+                    cw *= mw[:, None]
                 dos += np.bincount(eidx, weights=cw.sum(1), minlength=ne)
                 contrib = np.einsum("pc,pcj->pj", cw, proj_ir[corner_blk[loc], band_blk[loc][:, None], :])
                 for j in range(nproj):  # loop over projection channels only
                     pdos[:, j] += np.bincount(eidx, weights=contrib[:, j], minlength=ne)
             else:
-                dos += np.bincount(eidx, weights=_tet_dos(er, x), minlength=ne)
+                dos += np.bincount(eidx, weights=mw * _tet_dos(er, x), minlength=ne)
         inv = np.empty(ne, dtype=int)
         inv[order_e] = np.arange(ne)
         v = self.volume

@@ -134,6 +134,73 @@ def _tet_weights_blochl(e, eps, h):
     return _tet_weights(e, eps) + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
 
 
+def _tet_weights_at(e, eps: float, h: float = 0.0, blochl: bool = False) -> np.ndarray:
+    """``_tet_weights_blochl(e, eps, h)`` (``blochl``) or ``_tet_weights(e, eps)`` for one energy ``eps``, the same
+    formulas evaluated piece by piece on contiguous columns (one classification per energy, index gathers)."""
+    n = len(e)
+    cols = [np.ascontiguousarray(e[:, i]) for i in range(4)]
+
+    def piece(x):  # 1: ε1 < x ≤ ε2, 2: ε2 < x ≤ ε3, 3: ε3 < x < ε4, else 4 if x ≥ ε4, else 0 (as in _pieces)
+        p = (cols[0] < x).view(np.int8) + (cols[1] < x).view(np.int8)
+        p += (cols[2] < x).view(np.int8)
+        p[(cols[3] <= x) & ((p == 3) | (p == 0))] = 4
+        return p
+
+    w = np.zeros((n, 4))
+    p = piece(eps)
+    w[p == 4] = 0.25
+    for k in (1, 2, 3):
+        idx = np.flatnonzero(p == k)
+        if not len(idx):
+            continue
+        a1, a2, a3, a4 = (c.take(idx) for c in cols)
+        if k == 1:
+            x = eps - a1
+            d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
+            c = 0.25 * x**3 / (d21 * d31 * d41)
+            w[idx] = np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31,
+                               c * x / d41], 1)
+        elif k == 2:
+            d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
+            x1, x2, y3, y4 = eps - a1, eps - a2, a3 - eps, a4 - eps
+            k1 = 0.25 * x1**2 / (d41 * d31)
+            k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
+            k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
+            w[idx] = np.stack([
+                k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
+                k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
+                (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
+                (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
+            ], 1)
+        else:
+            y = a4 - eps
+            d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
+            c = 0.25 * y**3 / (d41 * d42 * d43)
+            w[idx] = np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
+                               0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
+    if not blochl:
+        return w
+    d_lo, d_hi = np.zeros(n), np.zeros(n)
+    for x, out in ((eps - h, d_lo), (eps + h, d_hi)):  # _tet_dos at eps ∓ h
+        p = piece(x)
+        for k in (1, 2, 3):
+            idx = np.flatnonzero(p == k)
+            if not len(idx):
+                continue
+            a1, a2, a3, a4 = (c.take(idx) for c in cols)
+            if k == 1:
+                out[idx] = 3 * (x - a1) ** 2 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
+            elif k == 2:
+                y = x - a2
+                d21, d31, d41, d32, d42 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2
+                out[idx] = (3 * d21 + 6 * y - 3 * (d31 + d42) / (d32 * d42) * y**2) / (d31 * d41)
+            else:
+                out[idx] = 3 * (a4 - x) ** 2 / ((a4 - a1) * (a4 - a2) * (a4 - a3))
+    d_f = 0.5 * (d_lo + d_hi)
+    # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
+    return w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
+
+
 def _tet_corner_dos(e, eps):
     """(n, 4) DOS carried by each sorted corner per unit volume fraction (sums to ``_tet_dos``).
 
@@ -180,20 +247,41 @@ def _tet_corner_dos(e, eps):
 
 
 
+@lru_cache(maxsize=4)
+def _cube_corner_index(mesh: tuple[int, int, int]) -> np.ndarray:
+    """(8, N) row-major grid index of cube corner c (offset bits ``_CORNER_BITS[c]``) of every grid point p, wrapped
+    periodically; each is an outer sum of three wrapped axis ranges. Kept between calls (read-only)."""
+    m = tuple(int(x) for x in mesh)
+    out = np.empty((8,) + m, dtype=np.int64)
+    for c in range(8):  # eight cube corners, not k-points
+        x, y, z = (int(v) for v in _CORNER_BITS[c])
+        i0 = (np.arange(m[0]) + x) % m[0]
+        i1 = (np.arange(m[1]) + y) % m[1]
+        i2 = (np.arange(m[2]) + z) % m[2]
+        np.add((i0[:, None] * m[1] + i1[None, :])[:, :, None] * m[2], i2[None, None, :], out=out[c])
+    out = out.reshape(8, -1)
+    out.setflags(write=False)
+    return out
+
+
+def _path_corners(flip) -> np.ndarray:
+    """(6, 4) cube-corner number of each corner of the six tetrahedra split along the diagonal from ``flip``."""
+    return (_PATHS ^ np.asarray(flip, dtype=int)[None, None, :]) @ np.array([1, 2, 4])
+
+
 @lru_cache(maxsize=8)
 def _corner_table(mesh: tuple[int, int, int], flip: tuple[int, int, int]) -> np.ndarray:
     """(6N, 4) row-major grid index of every tetrahedron corner; tetrahedron jN + p is path j from point p.
 
     Depends only on the mesh and the chosen diagonal, so it is kept between calls (read-only).
     """
-    offsets = np.bitwise_xor(_PATHS, np.asarray(flip, dtype=int)[None, None, :])  # (6, 4, 3)
-    n_full = int(np.prod(mesh))
-    base = np.unravel_index(np.arange(n_full), mesh)
-    table = np.zeros((6, n_full, 4), dtype=np.int64)
-    for axis in range(3):  # three axes, not k-points
-        coord = np.mod(base[axis][None, :, None] + offsets[:, None, :, axis], mesh[axis])
-        table *= mesh[axis]
-        table += coord
+    cube = _cube_corner_index(tuple(int(x) for x in mesh))
+    bits = _path_corners(flip)
+    n_full = cube.shape[1]
+    table = np.empty((6, n_full, 4), dtype=np.int64)
+    for j in range(6):  # six tetrahedra of a cube
+        for c in range(4):  # four corners
+            table[j, :, c] = cube[bits[j, c]]
     table = table.reshape(-1, 4)
     table.setflags(write=False)
     return table
