@@ -440,10 +440,6 @@ def _expand(frac, species, labels, ops, lattice, max_atoms=None):
     """
     import warnings
 
-    from scipy.sparse import coo_matrix
-    from scipy.sparse.csgraph import connected_components
-    from scipy.spatial import cKDTree
-
     from screener.errors import StructureWarning
 
     rot = np.array([r for r, _ in ops])
@@ -474,13 +470,25 @@ def _expand(frac, species, labels, ops, lattice, max_atoms=None):
         shift_parts.append(np.broadcast_to(t, (len(sel), 3)))
     idx = np.concatenate(idx_parts)
     copies = (images[idx] + np.concatenate(shift_parts)) @ lattice
-    tree = cKDTree(copies)
-    pairs = tree.query_ball_point(images @ lattice, r=MERGE_TOL_A, return_sorted=False)
+    cart = images @ lattice
+    if len(images) * len(copies) <= _DIRECT_PAIRS:
+        # a few hundred images (every ordinary CIF): all distances at once, no tree or sparse graph to import
+        d2 = np.sum((cart[:, None, :] - copies[None, :, :]) ** 2, axis=2)
+        rows, hit = np.nonzero(d2 <= MERGE_TOL_A**2)
+        cols = idx[hit]
+        group = _components(len(images), rows, cols)
+    else:
+        from scipy.sparse import coo_matrix
+        from scipy.sparse.csgraph import connected_components
+        from scipy.spatial import cKDTree
+
+        tree = cKDTree(copies)
+        pairs = tree.query_ball_point(cart, r=MERGE_TOL_A, return_sorted=False)
+        rows = np.repeat(np.arange(len(images)), [len(p) for p in pairs])
+        cols = idx[np.concatenate([np.asarray(p, dtype=int) for p in pairs])] if len(rows) else rows
+        graph = coo_matrix((np.ones(len(rows)), (rows, cols)), shape=(len(images), len(images)))
+        _, group = connected_components(graph, directed=False)
     # images joined by close pairs form one atom; it keeps the first image in file order
-    rows = np.repeat(np.arange(len(images)), [len(p) for p in pairs])
-    cols = idx[np.concatenate([np.asarray(p, dtype=int) for p in pairs])] if len(rows) else rows
-    graph = coo_matrix((np.ones(len(rows)), (rows, cols)), shape=(len(images), len(images)))
-    _, group = connected_components(graph, directed=False)
     first = np.full(group.max() + 1, len(images))
     np.minimum.at(first, group, np.arange(len(images)))
     rep = first[group]
@@ -518,6 +526,28 @@ def _expand(frac, species, labels, ops, lattice, max_atoms=None):
         seen[s] += 1
         out_l.append(labels[s] if counts[s] == 1 else f"{labels[s]}_{seen[s]}")
     return out_f, out_s, out_l
+
+
+#: Up to this many (image, copy) distances the duplicate merge computes them all at once; beyond it a k-d tree.
+_DIRECT_PAIRS = 400_000
+
+
+def _components(n: int, rows, cols) -> np.ndarray:
+    """Connected-component label of each of n nodes joined by the pairs (rows[k], cols[k]) (union-find)."""
+    root = np.arange(n)
+
+    def find(a):
+        while root[a] != a:
+            root[a] = root[root[a]]
+            a = root[a]
+        return a
+
+    for a, b in zip(rows.tolist(), cols.tolist(), strict=True):
+        ra, rb = find(a), find(b)
+        if ra != rb:
+            root[max(ra, rb)] = min(ra, rb)
+    labels = np.array([find(a) for a in range(n)])
+    return np.unique(labels, return_inverse=True)[1]
 
 
 _NEIGHBOUR_CELLS = np.array([[a, b, c] for a in (-1, 0, 1) for b in (-1, 0, 1) for c in (-1, 0, 1)], dtype=float)
