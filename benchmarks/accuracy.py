@@ -3,7 +3,9 @@
 Every structure is ranked with default settings; a case counts as predicted 'unstable' when the headline verdict
 is 'unstable', otherwise as 'not unstable' (stable or marginal). The last line is `accuracy x/y`.
 
-    python benchmarks/accuracy.py [--only NAME ...]
+    python benchmarks/accuracy.py [--only NAME ...] [--soft-modes]
+
+``--soft-modes`` adds the soft-mode generator (soft Φ(q) patterns and strain instabilities) to the default set.
 """
 
 from __future__ import annotations
@@ -23,11 +25,11 @@ def cases():
         return list(csv.DictReader(line for line in fh if not line.startswith("#")))
 
 
-def predict(path: Path):
+def predict(path: Path, generators=None):
     from screener.screen.rank import rank
     from screener.structure.formats import read_structure
 
-    result = rank(read_structure(path), progress=False)
+    result = rank(read_structure(path), progress=False, generators=generators)
     best = result.candidates[0] if result.candidates else None
     return result, best
 
@@ -35,7 +37,13 @@ def predict(path: Path):
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--only", nargs="*", default=None, help="file stems to run")
+    ap.add_argument("--soft-modes", action="store_true", help="add the soft-mode generator to the default set")
     args = ap.parse_args(argv)
+    generators = None
+    if args.soft_modes:
+        from screener.screen.generators import DEFAULT_GENERATORS
+
+        generators = (*DEFAULT_GENERATORS, "soft-mode")
     rows = [r for r in cases() if args.only is None or Path(r["file"]).stem in args.only]
     matrix = {(e, p): 0 for e in ("unstable", "stable") for p in ("unstable", "not unstable")}
     right = 0
@@ -44,7 +52,7 @@ def main(argv=None) -> int:
     for r in rows:
         t0 = time.perf_counter()
         try:
-            result, best = predict(FOLDER / r["file"])
+            result, best = predict(FOLDER / r["file"], generators)
         except Exception as exc:  # a failure is a wrong answer, shown, and the run goes on
             # an error is a wrong answer, kept out of the matrix and listed
             print(f"{r['file']:34s} {r['expected']:9s} ERROR     {type(exc).__name__}: {exc}"[:200])
