@@ -71,21 +71,52 @@ def _tet_count(e, eps):
     return out
 
 
+def _dos_piece(k: int, a1, a2, a3, a4, x):
+    """Per-tetrahedron DOS (states/eV per unit volume fraction) on piece k (1: ε1 < x ≤ ε2, 2: ε2 < x ≤ ε3,
+    3: ε3 < x < ε4) of sorted corners a1 ≤ a2 ≤ a3 ≤ a4 (Blöchl 1994, App. C); x a scalar or matching array."""
+    if k == 1:
+        return 3 * (x - a1) ** 2 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
+    if k == 2:
+        y = x - a2
+        d21, d31, d41, d32, d42 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2
+        return (3 * d21 + 6 * y - 3 * (d31 + d42) / (d32 * d42) * y**2) / (d31 * d41)
+    return 3 * (a4 - x) ** 2 / ((a4 - a1) * (a4 - a2) * (a4 - a3))
+
+
+def _weights_piece(k: int, a1, a2, a3, a4, x) -> np.ndarray:
+    """(m, 4) integration weights of the sorted corners on piece k (as in `_dos_piece`), without Blöchl's
+    correction (Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), Appendix B)."""
+    if k == 1:
+        x = x - a1
+        d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
+        c = 0.25 * x**3 / (d21 * d31 * d41)
+        return np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31, c * x / d41], 1)
+    if k == 2:
+        d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
+        x1, x2, y3, y4 = x - a1, x - a2, a3 - x, a4 - x
+        k1 = 0.25 * x1**2 / (d41 * d31)
+        k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
+        k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
+        return np.stack([
+            k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
+            k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
+            (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
+            (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
+        ], 1)
+    y = a4 - x
+    d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
+    c = 0.25 * y**3 / (d41 * d42 * d43)
+    return np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
+                     0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
+
+
 def _tet_dos(e, eps):
     """DOS of each tetrahedron per unit of its volume fraction, states/eV (Blöchl 1994, App. C)."""
     eps, c1, c2, c3 = _pieces(e, eps)
     out = np.zeros(len(e))
-    if c1.any():
-        a1, a2, a3, a4 = e[c1].T
-        out[c1] = 3 * (eps[c1] - a1) ** 2 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
-    if c2.any():
-        a1, a2, a3, a4 = e[c2].T
-        x = eps[c2] - a2
-        d21, d31, d41, d32, d42 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2
-        out[c2] = (3 * d21 + 6 * x - 3 * (d31 + d42) / (d32 * d42) * x**2) / (d31 * d41)
-    if c3.any():
-        a1, a2, a3, a4 = e[c3].T
-        out[c3] = 3 * (a4 - eps[c3]) ** 2 / ((a4 - a1) * (a4 - a2) * (a4 - a3))
+    for k, c in ((1, c1), (2, c2), (3, c3)):
+        if c.any():
+            out[c] = _dos_piece(k, *e[c].T, eps[c])
     return out
 
 
@@ -98,32 +129,9 @@ def _tet_weights(e, eps):
     eps, c1, c2, c3 = _pieces(e, eps)
     w = np.zeros((len(e), 4))
     w[eps >= e[:, 3]] = 0.25
-    if c1.any():
-        a1, a2, a3, a4 = e[c1].T
-        x = eps[c1] - a1
-        d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
-        c = 0.25 * x**3 / (d21 * d31 * d41)
-        w[c1] = np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31, c * x / d41], 1)
-    if c2.any():
-        a1, a2, a3, a4 = e[c2].T
-        d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
-        x1, x2, y3, y4 = eps[c2] - a1, eps[c2] - a2, a3 - eps[c2], a4 - eps[c2]
-        k1 = 0.25 * x1**2 / (d41 * d31)
-        k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
-        k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
-        w[c2] = np.stack([
-            k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
-            k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
-            (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
-            (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
-        ], 1)
-    if c3.any():
-        a1, a2, a3, a4 = e[c3].T
-        y = a4 - eps[c3]
-        d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
-        c = 0.25 * y**3 / (d41 * d42 * d43)
-        w[c3] = np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
-                          0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
+    for k, c in ((1, c1), (2, c2), (3, c3)):
+        if c.any():
+            w[c] = _weights_piece(k, *e[c].T, eps[c])
     return w
 
 
@@ -151,33 +159,8 @@ def _tet_weights_at(e, eps: float, h: float = 0.0, blochl: bool = False) -> np.n
     w[p == 4] = 0.25
     for k in (1, 2, 3):
         idx = np.flatnonzero(p == k)
-        if not len(idx):
-            continue
-        a1, a2, a3, a4 = (c.take(idx) for c in cols)
-        if k == 1:
-            x = eps - a1
-            d21, d31, d41 = a2 - a1, a3 - a1, a4 - a1
-            c = 0.25 * x**3 / (d21 * d31 * d41)
-            w[idx] = np.stack([c * (4 - x * (1 / d21 + 1 / d31 + 1 / d41)), c * x / d21, c * x / d31,
-                               c * x / d41], 1)
-        elif k == 2:
-            d31, d41, d32, d42 = a3 - a1, a4 - a1, a3 - a2, a4 - a2
-            x1, x2, y3, y4 = eps - a1, eps - a2, a3 - eps, a4 - eps
-            k1 = 0.25 * x1**2 / (d41 * d31)
-            k2 = 0.25 * x1 * x2 * y3 / (d41 * d32 * d31)
-            k3 = 0.25 * x2**2 * y4 / (d42 * d32 * d41)
-            w[idx] = np.stack([
-                k1 + (k1 + k2) * y3 / d31 + (k1 + k2 + k3) * y4 / d41,
-                k1 + k2 + k3 + (k2 + k3) * y3 / d32 + k3 * y4 / d42,
-                (k1 + k2) * x1 / d31 + (k2 + k3) * x2 / d32,
-                (k1 + k2 + k3) * x1 / d41 + k3 * x2 / d42,
-            ], 1)
-        else:
-            y = a4 - eps
-            d41, d42, d43 = a4 - a1, a4 - a2, a4 - a3
-            c = 0.25 * y**3 / (d41 * d42 * d43)
-            w[idx] = np.stack([0.25 - c * y / d41, 0.25 - c * y / d42, 0.25 - c * y / d43,
-                               0.25 - c * (4 - y * (1 / d41 + 1 / d42 + 1 / d43))], 1)
+        if len(idx):
+            w[idx] = _weights_piece(k, *(c.take(idx) for c in cols), eps)
     if not blochl:
         return w
     d_lo, d_hi = np.zeros(n), np.zeros(n)
@@ -185,17 +168,8 @@ def _tet_weights_at(e, eps: float, h: float = 0.0, blochl: bool = False) -> np.n
         p = piece(x)
         for k in (1, 2, 3):
             idx = np.flatnonzero(p == k)
-            if not len(idx):
-                continue
-            a1, a2, a3, a4 = (c.take(idx) for c in cols)
-            if k == 1:
-                out[idx] = 3 * (x - a1) ** 2 / ((a2 - a1) * (a3 - a1) * (a4 - a1))
-            elif k == 2:
-                y = x - a2
-                d21, d31, d41, d32, d42 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2
-                out[idx] = (3 * d21 + 6 * y - 3 * (d31 + d42) / (d32 * d42) * y**2) / (d31 * d41)
-            else:
-                out[idx] = 3 * (a4 - x) ** 2 / ((a4 - a1) * (a4 - a2) * (a4 - a3))
+            if len(idx):
+                out[idx] = _dos_piece(k, *(c.take(idx) for c in cols), x)
     d_f = 0.5 * (d_lo + d_hi)
     # Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), eq. 22: dw_i = D_T(ε_F)/40 Σ_j (ε_j − ε_i)
     return w + d_f[:, None] / 40.0 * (e.sum(1, keepdims=True) - 4 * e)
