@@ -187,3 +187,21 @@ def warn_short_contacts(crystal, hint: str = "") -> None:
             f"sites {a} and {b} are only {d:.3f} Å apart, less than {SHORT_CONTACT_FRACTION:g} × the sum of their "
             f"covalent radii ({r:.2f} Å, Cordero et al. 2008): the structure is probably not what the file "
             f"means{hint}", "short_contact", labels=[a, b], distance_A=d, radii_sum_A=r), stacklevel=3)
+
+
+def union_components(n: int, rows, cols) -> np.ndarray:
+    """(n,) connected-component label of each of n nodes joined by the pairs (rows[k], cols[k]), labels 0, 1, …
+    in the order of each component's lowest node (a small union-find; for big sparse graphs use scipy's)."""
+    root = np.arange(n)
+
+    def find(a):
+        while root[a] != a:
+            root[a] = root[root[a]]
+            a = root[a]
+        return a
+
+    for a, b in zip(np.asarray(rows, dtype=int).tolist(), np.asarray(cols, dtype=int).tolist(), strict=True):
+        ra, rb = find(a), find(b)
+        if ra != rb:
+            root[max(ra, rb)] = min(ra, rb)
+    return np.unique([find(a) for a in range(n)], return_inverse=True)[1]

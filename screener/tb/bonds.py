@@ -21,7 +21,7 @@ import numpy as np
 
 from screener.errors import StructureError
 from screener.structure.crystal import Crystal
-from screener.structure.neighbours import NeighbourList, find_neighbours
+from screener.structure.neighbours import NeighbourList, find_neighbours, union_components
 from screener.tb.params import ParameterSet, default_parameters
 
 #: Relative tolerance grouping neighbour distances into one shell (common practice, no source).
@@ -198,17 +198,10 @@ def bond_orbits(crystal: Crystal, i, j, image, rotations, translations, tol: flo
     for k in range(p):
         key[(int(i[k]), int(j[k]), *map(int, image[k]))] = k
         key[(int(j[k]), int(i[k]), *map(int, -image[k]))] = k
-    parent = np.arange(p)
-
-    def find(a):
-        while parent[a] != a:
-            parent[a] = parent[parent[a]]
-            a = parent[a]
-        return a
-
+    rows, cols = [], []  # pairs of bonds an operation maps onto each other
     for rot, t in zip(np.asarray(rotations), np.asarray(translations), strict=True):
         moved = frac @ rot.T + t
-        # atom s goes to the atom at moved[s] (modulo lattice translations), with lattice shift `shift`
+        # atom s goes to the atom at moved[s] (modulo lattice translations)
         diff = moved[:, None, :] - frac[None, :, :]
         match = np.all(np.abs(diff - np.round(diff)) < tol, axis=2)
         if not np.all(match.sum(axis=1) == 1):
@@ -224,9 +217,6 @@ def bond_orbits(crystal: Crystal, i, j, image, rotations, translations, tol: flo
         for k in range(p):
             m = key.get((int(new_i[k]), int(new_j[k]), *map(int, new_img[k])))
             if m is not None:
-                a, b = find(k), find(m)
-                if a != b:
-                    parent[max(a, b)] = min(a, b)
-    roots = np.array([find(k) for k in range(p)])
-    _, labels = np.unique(roots, return_inverse=True)
-    return labels
+                rows.append(k)
+                cols.append(m)
+    return union_components(p, rows, cols)

@@ -23,7 +23,7 @@ import numpy as np
 from screener.errors import FormatError, ScreenerError, StructureError
 from screener.structure.crystal import MIN_DISTANCE_A, Crystal
 from screener.structure.elements import normalise_symbol
-from screener.structure.neighbours import warn_short_contacts
+from screener.structure.neighbours import union_components, warn_short_contacts
 
 #: Sites closer than this (Å) after symmetry expansion are one site listed twice (same element) or a mixed
 #: site (different elements). Well below any bond, well above rounding of coordinates printed to 4 digits.
@@ -476,7 +476,7 @@ def _expand(frac, species, labels, ops, lattice, max_atoms=None):
         d2 = np.sum((cart[:, None, :] - copies[None, :, :]) ** 2, axis=2)
         rows, hit = np.nonzero(d2 <= MERGE_TOL_A**2)
         cols = idx[hit]
-        group = _components(len(images), rows, cols)
+        group = union_components(len(images), rows, cols)
     else:
         from scipy.sparse import coo_matrix
         from scipy.sparse.csgraph import connected_components
@@ -530,24 +530,6 @@ def _expand(frac, species, labels, ops, lattice, max_atoms=None):
 
 #: Up to this many (image, copy) distances the duplicate merge computes them all at once; beyond it a k-d tree.
 _DIRECT_PAIRS = 400_000
-
-
-def _components(n: int, rows, cols) -> np.ndarray:
-    """Connected-component label of each of n nodes joined by the pairs (rows[k], cols[k]) (union-find)."""
-    root = np.arange(n)
-
-    def find(a):
-        while root[a] != a:
-            root[a] = root[root[a]]
-            a = root[a]
-        return a
-
-    for a, b in zip(rows.tolist(), cols.tolist(), strict=True):
-        ra, rb = find(a), find(b)
-        if ra != rb:
-            root[max(ra, rb)] = min(ra, rb)
-    labels = np.array([find(a) for a in range(n)])
-    return np.unique(labels, return_inverse=True)[1]
 
 
 _NEIGHBOUR_CELLS = np.array([[a, b, c] for a in (-1, 0, 1) for b in (-1, 0, 1) for c in (-1, 0, 1)], dtype=float)
