@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import sys
 from pathlib import Path
@@ -373,52 +374,40 @@ def _check_export(path) -> None:
 
 def _export(table, path) -> None:
     """Write the store's table as CSV or Parquet, atomically (temporary file, then rename)."""
-    import os
-    import tempfile
-
     p = Path(path)
     if p.suffix.lower() == ".csv":
         _write_atomically(p, table.to_csv(index=False))
         return
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}-", dir=p.resolve().parent)
-    os.close(fd)
-    try:
+    with _atomic_path(p) as tmp:
         table.to_parquet(tmp, index=False)
-        os.replace(tmp, p)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
 
 
 def _write_structure_atomically(crystal, path, **options) -> None:
     """Write a structure file through a temporary file beside ``path`` and a rename: never half-written."""
+    from screener.structure.formats import write_structure
+
+    with _atomic_path(path) as tmp:
+        write_structure(crystal, tmp, **options)
+
+
+def _write_atomically(path, text: str) -> None:
+    """Write ``text`` to a temporary file beside ``path``, then rename it: never a half-written file."""
+    with _atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        fh.write(text)
+
+
+@contextlib.contextmanager
+def _atomic_path(path):
+    """A temporary file name beside ``path`` (same ending, so writers that look at it choose the same format);
+    renamed onto ``path`` when the block succeeds, removed whatever happens."""
     import os
     import tempfile
-
-    from screener.structure.formats import write_structure
 
     p = Path(path)
     fd, tmp = tempfile.mkstemp(prefix=f".{p.stem}-", suffix=p.suffix, dir=p.resolve().parent)
     os.close(fd)
     try:
-        write_structure(crystal, tmp, **options)
-        os.replace(tmp, p)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-
-
-def _write_atomically(path, text: str) -> None:
-    """Write ``text`` to a temporary file beside ``path``, then rename it: never a half-written file."""
-    import os
-    import tempfile
-    from pathlib import Path
-
-    p = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}-", dir=p.resolve().parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
+        yield tmp
         os.replace(tmp, p)
     finally:
         if os.path.exists(tmp):
