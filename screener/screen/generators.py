@@ -504,7 +504,6 @@ def _symmetric_patterns(ctx, q_frac, basis: np.ndarray, most: int = 3) -> list[n
     distorted structure, most symmetric first (at most ``most``). At harmonic order they cost the same; which one
     the crystal takes is decided by the energy at finite amplitude, so each becomes a candidate (at R of simple
     cubic: the tetragonal, orthorhombic and the A7 rhombohedral split)."""
-    from screener.structure.symmetry import analyse
 
     n = ctx.crystal.n_atoms
     q_basis, _ = np.linalg.qr(basis)
@@ -515,17 +514,25 @@ def _symmetric_patterns(ctx, q_frac, basis: np.ndarray, most: int = 3) -> list[n
         if np.linalg.norm(proj) > 1e-3:
             trials.append(proj / np.linalg.norm(proj))
     trials += [q_basis[:, k] for k in range(q_basis.shape[1])]
-    by_group: dict[int, tuple[float, np.ndarray]] = {}
-    for v in trials:
-        fam = mode_family(ctx, q_frac, v)
+    return _one_per_product_group(ctx, ((v, mode_family(ctx, q_frac, v)) for v in trials), most)
+
+
+def _one_per_product_group(ctx, candidates, most: int) -> list:
+    """From (payload, family or None) pairs: the payload of the most symmetric family per distinct space group of
+    the distorted structure (operations per atom at a small amplitude; the first wins a tie), most symmetric
+    groups first, at most ``most``."""
+    from screener.structure.symmetry import analyse
+
+    by_group: dict[int, tuple[float, object]] = {}
+    for payload, fam in candidates:
         if fam is None:
             continue
         sym = analyse(fam.at(0.05), ctx.settings.symprec_A)
         ops = len(sym.rotations) / fam.reference.n_atoms
         if sym.number not in by_group or ops > by_group[sym.number][0] + 1e-9:
-            by_group[sym.number] = (ops, v)
+            by_group[sym.number] = (ops, payload)
     ranked = sorted(by_group.items(), key=lambda kv: (-kv[1][0], -kv[0]))
-    return [v for _, (_, v) in ranked[:most]]
+    return [payload for _, (_, payload) in ranked[:most]]
 
 
 #: Trial strains (Voigt) for the most symmetric members of a degenerate unstable strain level: uniaxial,
@@ -565,7 +572,6 @@ def strain_instabilities(parent, most: int = 3, notes: list | None = None) -> li
     screener.screen.modes.strain_stiffness): per degenerate level, one strain per distinct product space group,
     most symmetric first (at most ``most``). A cell with vacuum has none."""
     from screener.screen.modes import describe_strain, strain_stiffness
-    from screener.structure.symmetry import analyse
 
     ctx = _parent(parent)
     if not all(ctx.model.periodic):
@@ -577,21 +583,17 @@ def strain_instabilities(parent, most: int = 3, notes: list | None = None) -> li
         trials = [q_basis @ (q_basis.T @ t) for t in _TRIAL_STRAINS]
         if all(np.linalg.norm(t) < 1e-3 for t in trials):
             trials = [q_basis[:, k] for k in range(basis.shape[1])]  # no standard strain in the level: its basis
-        by_group: dict[int, tuple[float, DistortionFamily]] = {}
+        fams = []
         for t in trials:
             if np.linalg.norm(t) < 1e-3:
                 continue
             t = t / np.linalg.norm(t)
             try:
-                fam = strain_family(ctx, t, description=f"unstable strain ({describe_strain((value, t[:, None]))})")
+                fams.append(strain_family(ctx, t, description=f"unstable strain "
+                                                              f"({describe_strain((value, t[:, None]))})"))
             except ParameterError:
                 continue
-            sym = analyse(fam.at(0.05), ctx.settings.symprec_A)
-            ops = len(sym.rotations)
-            if sym.number not in by_group or ops > by_group[sym.number][0]:
-                by_group[sym.number] = (ops, fam)
-        ranked = sorted(by_group.items(), key=lambda kv: (-kv[1][0], -kv[0]))
-        out += [fam for _, (_, fam) in ranked[:most]]
+        out += _one_per_product_group(ctx, ((f, f) for f in fams), most)
     if notes is not None:
         notes.append(f"strain search: {len(st.unstable)} unstable strain level(s) of the model's elastic constants, "
                      f"{len(out)} strain candidate(s) handed on")
