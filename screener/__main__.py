@@ -1,5 +1,5 @@
 """`python -m screener ...` runs the command-line tool."""
 
-from screener.show.cli import main
+from screener._entry import main
 
 raise SystemExit(main())

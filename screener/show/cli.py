@@ -676,16 +676,30 @@ def _on_sigterm(signum, frame):
     raise Terminated()
 
 
-#: Modules each command needs, imported before it runs (where a signal is only noted, see main).
+#: Modules each command needs, imported before it runs (where a signal is only noted, see main): the compiled
+#: libraries every command reaches (an interrupt raised inside their import can abort the interpreter), then the
+#: command's own modules.
+_COMPILED_MODULES = ("numpy", "spglib", "gemmi")
+_NUMERICAL_MODULES = ("scipy.linalg", "scipy.optimize")  # every command but info diagonalises or minimises
 _COMMAND_MODULES = {
-    "info": ("numpy", "screener.structure.symmetry", "screener.structure.formats.cif"),
-    "bands": ("numpy", "screener.bz.bands", "screener.structure.formats.cif"),
-    "rank": ("numpy", "screener.screen.rank", "screener.show.report", "screener.structure.formats.cif"),
-    "batch": ("numpy", "screener.run.batch", "screener.screen.rank"),
-    "demo": ("numpy", "screener.show.report", "screener.screen.rank"),
-    "explain": ("numpy", "screener.screen.explain", "screener.structure.formats.cif"),
-    "modes": ("numpy", "screener.screen.modes", "screener.screen.parent", "screener.structure.formats.cif"),
+    "info": ("screener.structure.symmetry",),
+    "bands": ("screener.bz.bands",),
+    "rank": ("screener.screen.rank", "screener.show.report"),
+    "batch": ("screener.run.batch", "screener.screen.rank"),
+    "demo": ("screener.show.report", "screener.screen.rank"),
+    "explain": ("screener.screen.explain",),
+    "modes": ("screener.screen.modes", "screener.screen.parent"),
 }
+#: Added when the command will draw figures (the plotting library is compiled too).
+_FIGURE_MODULES = ("matplotlib.figure", "matplotlib.backends.backend_agg", "matplotlib.collections")
+
+
+def _modules_for(args) -> tuple[str, ...]:
+    if args.command not in _COMMAND_MODULES:
+        return ()
+    draws = args.command == "demo" or getattr(args, "plot", None) or getattr(args, "report", None)
+    numerical = () if args.command == "info" else _NUMERICAL_MODULES
+    return _COMPILED_MODULES + numerical + _COMMAND_MODULES[args.command] + (_FIGURE_MODULES if draws else ())
 
 
 def main(argv=None) -> int:
@@ -705,7 +719,7 @@ def main(argv=None) -> int:
     try:
         parser = build_parser()  # imports the generator registry, i.e. the numerical stack
         args = parser.parse_args(argv)
-        for name in _COMMAND_MODULES.get(args.command, ()):
+        for name in _modules_for(args):
             importlib.import_module(name)
     finally:
         if main_thread:
