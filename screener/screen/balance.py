@@ -323,9 +323,10 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         note.append(f"ΔE not converged to {settings.convergence_meV_per_atom} meV/atom on two successive meshes "
                     f"(last mesh {mesh}, last change {residual:.2f} meV/atom)")
     if lam_opt > 0 and mesh != coarse_mesh:
-        # the amplitude came from the coarse scan: polish it on the final mesh, one scan step either side
-        around = np.clip([lam_opt - step, lam_opt, lam_opt + step], 0.0, lam_max)
-        lam_opt = _polish(around, lambda x: sum(e_at(x, mesh)[:2]))
+        # the amplitude came from the coarse scan: polish it on the final mesh with the parabola through the scan
+        # amplitudes around it (the closure range below evaluates those on this mesh anyway)
+        j = int(np.argmin(np.abs(lams - lam_opt)))
+        lam_opt = _polish(lams[max(j - 1, 0):j + 2], lambda x: sum(e_at(x, mesh)[:2]))
     if lam_opt > 0:
         d_band, d_el, res_opt = delta(mesh, lam_opt)
     delta_total = d_band + d_el
