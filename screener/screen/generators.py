@@ -19,12 +19,10 @@ from fractions import Fraction
 import numpy as np
 
 from screener.errors import ParameterError
+from screener.screen import DEFAULT_GENERATORS, GENERATORS  # noqa: F401  (the names, re-exported)
 from screener.structure.crystal import Crystal
 from screener.structure.symmetry import SYMPREC_A
 
-GENERATORS = ("dimerise", "rhombohedral-split", "modulate", "soft-mode")
-#: Generators run when none are named: the soft-mode search costs a whole q survey, so it is asked for by name.
-DEFAULT_GENERATORS = ("dimerise", "rhombohedral-split", "modulate")
 #: Soft-mode candidates: q denominators searched, most candidates handed to the comparator, largest supercell.
 SOFT_MODE_Q_GRID = 2
 SOFT_MODE_MAX = 3

@@ -465,7 +465,7 @@ def cmd_demo(args) -> int:
 def _add_rank_options(p: argparse.ArgumentParser) -> None:
     """Options of how a structure is ranked (shared by rank and batch)."""
     p.add_argument("--params", help="TOML parameter file overriding the built-in parameters")
-    from screener.screen.generators import GENERATORS
+    from screener.screen import GENERATORS
 
     p.add_argument("--generator", action="append", metavar="NAME",
                    help=f"candidate generator to run, one of {', '.join(GENERATORS)} (repeatable; default: all but soft-mode, that "
