@@ -69,7 +69,8 @@ class CandidateResult:
     """Elastic part along the scan, meV/atom."""
     delta_E_range_meV_per_atom: tuple[float, float]
     """(lowest, highest) ΔE at the optimum over the members of the closure's uncertainty range, meV/atom (0 for a
-    member that gains nothing)."""
+    member that gains nothing). The nominal member's value is the final mesh's; the others come from the last mesh
+    but one of a converged refinement (``curve_kmesh``), within the convergence tolerance of the final mesh."""
     distorting_fraction: float
     """Fraction of the closure's members that gain more than the threshold."""
     member_delta_E_meV_per_atom: tuple[float, ...]
@@ -83,13 +84,14 @@ class CandidateResult:
     bonds: object = field(repr=False, default=None)
     """model.BondList of the optimum: the parent's bonds, followed to the displaced atoms."""
     curve_amplitude_A: tuple[float, ...] = ()
-    """Amplitudes of ΔE(λ) on the mesh the verdict comes from, Å."""
+    """Amplitudes of ΔE(λ) on the mesh the closure range comes from (see ``curve_kmesh``), Å."""
     curve_delta_E_meV_per_atom: tuple[float, ...] = ()
     """Nominal ΔE(λ) on that mesh, meV/atom."""
     curve_range_meV_per_atom: tuple[tuple[float, ...], tuple[float, ...]] = ((), ())
     """(lowest, highest) ΔE(λ) over the members of the verdict's range on that mesh, meV/atom."""
     curve_kmesh: tuple[int, int, int] = (0, 0, 0)
-    """k-mesh of that curve (supercell reciprocal basis)."""
+    """k-mesh of that curve (supercell reciprocal basis): the last mesh but one of a converged refinement, else
+    the final mesh (or the scan mesh when no refinement was needed)."""
 
 
 # --------------------------------------------------------------------------------------------- machinery
@@ -296,6 +298,7 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         return (b - pb) * 1e3, (e - pe) * 1e3, r
 
     coarse_mesh = mesh
+    previous_mesh = mesh  # the last mesh but one of the refinement sequence
     d_band, d_el, res_opt = delta(mesh, lam_ref)
     converged = lam_ref == 0.0
     residual = 0.0 if converged else float("nan")
@@ -318,15 +321,15 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         residual = abs((nb + ne) - (d_band + d_el))
         passes = passes + 1 if residual < settings.convergence_meV_per_atom else 0
         converged = passes >= 2
+        previous_mesh = mesh
         mesh, d_band, d_el, res_opt = finer, nb, ne, nr
     if not converged:
         note.append(f"ΔE not converged to {settings.convergence_meV_per_atom} meV/atom on two successive meshes "
                     f"(last mesh {mesh}, last change {residual:.2f} meV/atom)")
     if lam_opt > 0 and mesh != coarse_mesh:
-        # the amplitude came from the coarse scan: polish it on the final mesh with the parabola through the scan
-        # amplitudes around it (the closure range below evaluates those on this mesh anyway)
-        j = int(np.argmin(np.abs(lams - lam_opt)))
-        lam_opt = _polish(lams[max(j - 1, 0):j + 2], lambda x: sum(e_at(x, mesh)[:2]))
+        # the amplitude came from the coarse scan: polish it on the final mesh, one scan step either side
+        around = np.clip([lam_opt - step, lam_opt, lam_opt + step], 0.0, lam_max)
+        lam_opt = _polish(around, lambda x: sum(e_at(x, mesh)[:2]))
     if lam_opt > 0:
         d_band, d_el, res_opt = delta(mesh, lam_opt)
     delta_total = d_band + d_el
@@ -335,7 +338,11 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         lam_opt, d_band, d_el, delta_total = 0.0, 0.0, 0.0, 0.0
         res_opt = e_at(0.0, mesh)[2]
 
-    # the closure's uncertainty range, on the same final mesh (amplitudes up to a little beyond the optimum)
+    # the closure's uncertainty range (amplitudes up to a little beyond the optimum), on the last mesh but one of
+    # a converged refinement: ΔE at λ_ref changed by less than the convergence tolerance from there to the final
+    # mesh, so the members' gains carry that accuracy for a third of the diagonalisation work; the nominal
+    # member's ΔE is the final mesh's, polished above (an unconverged sequence keeps its final mesh)
+    range_mesh = previous_mesh if converged and previous_mesh != coarse_mesh else mesh
     if lam_ref > 0 and family.strain_axis is None:
         # the other hopping set only around its own coarse optimum (three amplitudes and λ = 0)
         n_own = len(parent.ensemble)
@@ -363,7 +370,7 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
 
         own, near = {i for i in own if i < n_x}, {i for i in near if i < n_x}
         while True:
-            xs, fine = member_totals(mesh, upto=upto, alt_near=near, own_near=own)
+            xs, fine = member_totals(range_mesh, upto=upto, alt_near=near, own_near=own)
             add_own = edges(fine[:n_own], own)
             if not add_own:
                 break
@@ -434,7 +441,7 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         curve_delta_E_meV_per_atom=tuple(float(x) for x in fine[nominal_row][done]),
         curve_range_meV_per_atom=(tuple(float(x) for x in np.nanmin(fine[:, done], axis=0)),
                                   tuple(float(x) for x in np.nanmax(fine[:, done], axis=0))),
-        curve_kmesh=tuple(int(x) for x in (mesh if xs is not lams else coarse_mesh)),
+        curve_kmesh=tuple(int(x) for x in (range_mesh if xs is not lams else coarse_mesh)),
         cell_strain=float(strain_opt),
         structure=crystal_opt,
         bonds=type(ev.bonds)(ev.bonds.i, ev.bonds.j, follow_bonds(ev.bonds.i, ev.bonds.j, ev.bonds.image, shift)),

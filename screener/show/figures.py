@@ -244,7 +244,8 @@ def _curve_fields(curve, index: int):
         band = get("scan_delta_E_band_meV_per_atom")
         elastic = get("scan_delta_E_elastic_meV_per_atom")
         if get("curve_amplitude_A"):
-            # the curve on the mesh the optimum and verdict come from, with the verdict's range as a band
+            # the curve on the mesh the verdict's range comes from (within the convergence tolerance of the optimum's
+            # final mesh), with that range as a band
             amp, total = get("curve_amplitude_A"), get("curve_delta_E_meV_per_atom")
             band = elastic = None
             lo, hi = get("curve_range_meV_per_atom")
