@@ -186,9 +186,20 @@ def _standardise(crystal: Crystal, info: SymmetryInfo):
     mine[spg_index] = np.arange(len(source))
     orbit = mine[info.mapping_to_primitive[info.equivalent_atoms[source]]]
     rep = np.array([np.flatnonzero(orbit == orbit[k]).min() for k in range(len(source))])
+    rots_p, trans_p = rots_i[first], trans[first]
+    if round(abs(float(np.linalg.det(m)))) > 1:
+        # spglib lists only the operations that map the input's own lattice onto itself: for a supercell whose
+        # lattice is less symmetric than the crystal (fcc as a 2×1×1 cell keeps 12 of its 48 rotations) the
+        # primitive cell would inherit that loss, and with it more candidates, larger meshes and a different
+        # answer for the same crystal; the primitive cell's own search lists them all
+        full = analyse(prim_crystal, info.symprec_A)
+        if len(full.rotations) > len(rots_p):
+            rots_p, trans_p = np.asarray(full.rotations, dtype=int), np.asarray(full.translations, dtype=float)
+            rep = np.array([np.flatnonzero(full.equivalent_atoms == full.equivalent_atoms[k]).min()
+                            for k in range(len(source))])
     prim_info = SymmetryInfo(
         symbol=info.symbol, number=info.number, wyckoff=tuple(info.wyckoff[k] for k in source),
-        equivalent_atoms=rep, rotations=rots_i[first], translations=trans[first],
+        equivalent_atoms=rep, rotations=rots_p, translations=trans_p,
         primitive_atoms=len(source), symprec_A=info.symprec_A, transformation_matrix=centring.T.copy(),
         origin_shift=np.zeros(3), mapping_to_primitive=np.arange(len(source)),
     )

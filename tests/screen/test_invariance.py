@@ -43,6 +43,10 @@ def writings_of_rocksalt():
                                                              [.5, .5, .5], [.5, 0, 0], [0, .5, 0], [0, 0, .5]],
                                               ["Ge"] * 4 + ["Te"] * 4)
     yield "rotated frame", Crystal(FCC * a @ _rotation(3).T, [[0, 0, 0], [0.5, 0.5, 0.5]], ["Ge", "Te"])
+    # a 2×1×1 cell of the primitive cell: its lattice keeps only 12 of the crystal's 48 rotations, which the
+    # symmetry search of the cell as given lists (arithmetic of the fcc lattice)
+    yield "2x1x1 cell of the primitive cell", Crystal(FCC * a, [[0, 0, 0], [0.5, 0.5, 0.5]],
+                                                      ["Ge", "Te"]).supercell(np.diag([2, 1, 1]))
 
 
 SSH = {  # Su, Schrieffer & Heeger, PRB 22, 2099 (1980): polyacetylene chain parameters
@@ -62,7 +66,9 @@ def writings_of_chain():
 def _headline(crystal, params=None):
     result = rank(crystal, params, settings=SETTINGS, progress=False)
     best = result.candidates[0]
-    return best.verdict, best.delta_E_meV_per_atom, best.space_group_number, best.generator
+    # the whole candidate list, not only the headline: the same distortions, each with the same verdict
+    others = sorted((c.generator, c.supercell_atoms, c.verdict) for c in result.candidates)
+    return best.verdict, best.delta_E_meV_per_atom, best.space_group_number, best.generator, others
 
 
 @pytest.mark.parametrize("family", ["simple cubic", "rocksalt", "chain"])
@@ -72,7 +78,8 @@ def test_verdict_and_delta_E_do_not_depend_on_how_the_crystal_is_written(family)
     params = parameters_from_dict(SSH, ["C"]) if family == "chain" else None
     results = {name: _headline(c, params) for name, c in writings}
     ref = results["as given"]
-    for name, (verdict, dE, sg, gen) in results.items():
+    for name, (verdict, dE, sg, gen, others) in results.items():
         assert (verdict, sg, gen) == (ref[0], ref[2], ref[3]), \
             f"{family}, {name}: {verdict} {sg} {gen} vs {ref}"
+        assert others == ref[4], f"{family}, {name}: candidates {others} vs {ref[4]}"
         assert dE == pytest.approx(ref[1], abs=1.0), f"{family}, {name}: ΔE {dE} vs {ref[1]}"

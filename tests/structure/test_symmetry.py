@@ -182,3 +182,18 @@ def test_space_group_invariant_under_atom_reordering(name, seed):
     info = analyse(shuffled)
     assert info.number == _EXPECTED[name]
     assert info.primitive_atoms == analyse(crystal).primitive_atoms
+
+
+def test_primitive_cell_of_a_supercell_keeps_every_rotation_of_the_crystal():
+    # fcc Al (point group m-3m, order 48: International Tables A) written as a 2×1×1 cell of its primitive cell:
+    # that lattice maps onto itself under only 12 of the 48 rotations, and the cell's own symmetry search lists
+    # only those; the standardised primitive cell must carry all 48 again
+    from screener.structure.symmetry import standardise
+
+    fcc = _load("Al_fcc_symbol_only.cif")
+    prim, _ = standardise(fcc, analyse(fcc))
+    skewed = prim.crystal.supercell(np.diag([2, 1, 1]))
+    info = analyse(skewed)
+    assert info.number == 225 and len(np.unique(info.rotations, axis=0)) == 12
+    std, prim_info = standardise(skewed, info)
+    assert std.crystal.n_atoms == 1 and len(np.unique(prim_info.rotations, axis=0)) == 48
