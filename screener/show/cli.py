@@ -354,7 +354,7 @@ def cmd_batch(args) -> int:
         print(f"report written to {write_batch_report(args.store, args.report, args.descriptor)}/")
     if summary.interrupted:
         print("screener batch: stopped before the end; run the same command again to finish", file=sys.stderr)
-        return 130
+        return 143 if _TERMINATED else 130
     return 0
 
 
@@ -672,7 +672,13 @@ class Terminated(KeyboardInterrupt):
     """SIGTERM received: stop as on Ctrl-C (work in flight is abandoned cleanly), exit 143 (128 + 15)."""
 
 
+#: set once a SIGTERM arrived: a batch catches the interrupt to store the work in flight, and still owes the
+#: caller the exit status of the signal that stopped it
+_TERMINATED: list[int] = []
+
+
 def _on_sigterm(signum, frame):
+    _TERMINATED.append(signum)
     raise Terminated()
 
 
