@@ -334,7 +334,11 @@ def _fit_bending(parent: Parent, params: ParameterSet, model, mesh, band0_eV: fl
         out.append((label, RepulsionPrefactor(float(a), kappa), m))
         notes.append((c0, [x + kappa * u for x, u in zip(c0, bend_c, strict=True)], kappa))
     (c0, c1, kappa) = notes[len(notes) // 2]
+    if not any(k > 0 for _, _, k in notes):
+        return out, "none", (f"the pair closure already reaches the measured shear constants of {phase} (model C44 "
+                             f"{c0[0]:.1f} ≥ {c44:g}, C' {c0[1]:.1f} ≥ {cp:.4g} GPa, clamped ions; {source}; bundled "
+                             "table): no bond-bending term")
     text = (f"bond bending fitted to the measured shear constants of {phase} (C44 = {c44:g}, C' = {cp:.4g} GPa; "
             f"{source}; bundled table): nominal κ = {kappa:.4g} eV; model C44 {c0[0]:.1f} → {c1[0]:.1f}, "
             f"C' {c0[1]:.1f} → {c1[1]:.1f} GPa (clamped ions)")
-    return out, ("bond-bending" if any(k > 0 for _, _, k in notes) else "none"), text
+    return out, "bond-bending", text
