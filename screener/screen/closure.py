@@ -5,11 +5,26 @@ models adds a short-ranged pair repulsion whose strength is fixed by requiring t
 be in mechanical equilibrium (Chadi, Phys. Rev. Lett. 41, 1062 (1978)). Here φ(d) = A (d0/d)^m per bond, where d0
 is the bond's length in the parent, one A for all bonds, fixed by dE_total/ds = 0 under uniform scaling
 r → (1 + s) r. Bonds whose parameters give ``spring_eV_per_A2`` use Σ ½ K (d − d0)² instead.
+
+A closure of pair terms fitted to equilibrium and the bulk modulus has no handle on shear: the repulsion is
+compressed (φ' < 0) to balance the bands, and its tension term (φ'/d)(1 − n nᵀ) softens every transverse pattern.
+Where the bundled table has measured single-crystal shear constants for the parent's phase, the closure adds a
+bond-bending term over every pair of bonds b, b' meeting at an atom,
+
+    E_bend = ½ κ Σ_(b,b') (cos θ_bb' − cos θ⁰_bb')²,
+
+the angular three-body form of the valence-force-field models (P. N. Keating, Phys. Rev. 145, 637 (1966) writes it
+in bond-vector dot products; F. H. Stillinger & T. A. Weber, Phys. Rev. B 31, 5262 (1985) in cos θ). It is zero with
+zero slope at the parent and invariant under uniform scaling and rigid rotations, so the equilibrium, the bulk
+modulus and the fit of A and m are untouched; κ ≥ 0 is the smallest value for which the model's clamped-ion C44 and
+C' = (C11 − C12)/2 both reach their measured values (`bending_for_shear`). The pair-repulsion prefactor is then
+handed around as a `RepulsionPrefactor` (a float that also carries κ), so every place that builds an ElasticModel
+from (A, m) gets the whole closure.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -54,6 +69,31 @@ class ElasticModel:
     """(p,) float, harmonic spring constant per bond, eV/Å^2 (0 for repulsion bonds)."""
     exponent: float
     """Pair-repulsion exponent m."""
+    angle_bonds: np.ndarray = field(default_factory=lambda: np.zeros((0, 2), dtype=int))
+    """(t, 2) int, the two bonds (indices into the bond arrays) of each bond pair meeting at an atom."""
+    angle_signs: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
+    """(t, 2) ±1: +1 where the shared atom is the bond's first atom i (the arm is the bond vector), −1 where it is j."""
+    angle_cos0: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    """(t,) cos θ⁰ of each bond pair in the parent."""
+    bending_eV: float = 0.0
+    """Bond-bending constant κ of ½ κ (cos θ − cos θ⁰)² per bond pair, eV (0: no bending term)."""
+
+    def bond_vectors_A(self, lattice_A: np.ndarray, frac: np.ndarray, image: np.ndarray | None = None) -> np.ndarray:
+        """(p, 3) Cartesian bond vectors (Å) of the cell; ``image`` overrides the stored images."""
+        img = self.image if image is None else image
+        return (frac[self.j] + img - frac[self.i]) @ lattice_A
+
+    def bending_energy_eV(self, lattice_A: np.ndarray, frac: np.ndarray, image: np.ndarray | None = None) -> float:
+        """Σ ½ κ (cos θ − cos θ⁰)² over the bond pairs (eV); 0 without a bending term."""
+        if self.bending_eV == 0 or len(self.angle_cos0) == 0:
+            return 0.0
+        return float(0.5 * self.bending_eV * np.sum((self._cosines(self.bond_vectors_A(lattice_A, frac, image))
+                                                       - self.angle_cos0) ** 2))
+
+    def _cosines(self, vec: np.ndarray) -> np.ndarray:
+        a = vec[self.angle_bonds[:, 0]] * self.angle_signs[:, :1]
+        b = vec[self.angle_bonds[:, 1]] * self.angle_signs[:, 1:]
+        return np.einsum("ij,ij->i", a, b) / (np.linalg.norm(a, axis=1) * np.linalg.norm(b, axis=1))
 
     def energy_eV(self, lattice_A: np.ndarray, frac: np.ndarray, image: np.ndarray | None = None) -> float:
         """Elastic energy of the cell (eV). ``image`` overrides the stored bond images (bonds that follow
@@ -62,7 +102,46 @@ class ElasticModel:
         d = bond_lengths_A(lattice_A, frac, self.i, self.j, img)
         rep = self.repulsion_eV * (self.rest_length_A / d) ** self.exponent
         spr = 0.5 * self.spring_eV_per_A2 * (d - self.rest_length_A) ** 2
-        return float(rep.sum() + spr.sum())
+        return float(rep.sum() + spr.sum()) + self.bending_energy_eV(lattice_A, frac, img)
+
+
+class RepulsionPrefactor(float):
+    """The pair-repulsion prefactor A (eV, behaves as the float A) of one closure member, carrying that member's
+    bond-bending constant κ (``bending_eV``, eV; 0 without a bending term)."""
+
+    def __new__(cls, value: float, bending_eV: float = 0.0):
+        obj = super().__new__(cls, value)
+        obj.bending_eV = float(bending_eV)
+        return obj
+
+    def __reduce__(self):
+        return (type(self), (float(self), self.bending_eV))
+
+    def __repr__(self) -> str:
+        return f"{float(self)!r}" if self.bending_eV == 0 else f"{float(self)!r} (κ = {self.bending_eV!r})"
+
+
+def bond_pairs(i: np.ndarray, j: np.ndarray, n_atoms: int) -> tuple[np.ndarray, np.ndarray]:
+    """Every pair of bonds meeting at an atom: ((t, 2) bond indices, (t, 2) signs, +1 where the atom is the bond's
+    i, −1 where it is its j). A bond from an atom to its own image meets that atom twice (both arms count)."""
+    i, j = np.asarray(i, dtype=int), np.asarray(j, dtype=int)
+    atom = np.concatenate([i, j])
+    bond = np.concatenate([np.arange(len(i)), np.arange(len(i))])
+    sign = np.concatenate([np.ones(len(i)), -np.ones(len(i))])
+    order = np.argsort(atom, kind="stable")
+    atom, bond, sign = atom[order], bond[order], sign[order]
+    starts = np.searchsorted(atom, np.arange(n_atoms + 1))
+    pairs, signs = [], []
+    for a in range(n_atoms):  # a loop over atoms (a few hundred at most), each vectorised over its arms
+        lo, hi = starts[a], starts[a + 1]
+        if hi - lo < 2:
+            continue
+        u, v = np.triu_indices(hi - lo, k=1)
+        pairs.append(np.stack([bond[lo + u], bond[lo + v]], axis=1))
+        signs.append(np.stack([sign[lo + u], sign[lo + v]], axis=1))
+    if not pairs:
+        return np.zeros((0, 2), dtype=int), np.zeros((0, 2))
+    return np.concatenate(pairs), np.concatenate(signs)
 
 
 def pair_repulsion_prefactor_eV(band_slope_eV: float, n_repulsive_bonds: int, exponent: float) -> float:
@@ -111,13 +190,24 @@ def _spring_per_bond(crystal: Crystal, params, i: np.ndarray, j: np.ndarray) -> 
 
 
 def elastic_model_for(crystal: Crystal, params, bonds, repulsion_eV: float, exponent: float) -> ElasticModel:
-    """ElasticModel over the model's bonds (each once): springs where the parameters give one, else repulsion."""
+    """ElasticModel over the model's bonds (each once): springs where the parameters give one, else repulsion;
+    plus the bond-bending term over every pair of those bonds meeting at an atom when ``repulsion_eV`` is a
+    `RepulsionPrefactor` with κ > 0 (rest angles from ``crystal``)."""
     keep = unique_bond_mask(bonds.i, bonds.j, bonds.image)
     i, j, image = bonds.i[keep], bonds.j[keep], bonds.image[keep]
     d0 = bond_lengths_A(crystal.lattice_A, crystal.frac, i, j, image)
     springs = _spring_per_bond(crystal, params, i, j)
-    rep = np.where(springs > 0, 0.0, repulsion_eV)
-    return ElasticModel(i, j, image, d0, rep, springs, float(exponent))
+    rep = np.where(springs > 0, 0.0, float(repulsion_eV))
+    el = ElasticModel(i, j, image, d0, rep, springs, float(exponent))
+    kappa = float(getattr(repulsion_eV, "bending_eV", 0.0))
+    if kappa == 0:
+        return el
+    if not kappa > 0:
+        raise ParameterError(f"the bond-bending constant must be positive or zero, got {kappa!r} eV")
+    pairs, signs = bond_pairs(i, j, crystal.n_atoms)
+    el = ElasticModel(i, j, image, d0, rep, springs, float(exponent), pairs, signs, np.zeros(len(pairs)), kappa)
+    cos0 = el._cosines(el.bond_vectors_A(crystal.lattice_A, crystal.frac)) if len(pairs) else np.zeros(0)
+    return ElasticModel(i, j, image, d0, rep, springs, float(exponent), pairs, signs, cos0, kappa)
 
 
 # ---------------------------------------------------------------------------------------------- bulk modulus
@@ -186,3 +276,39 @@ def bulk_modulus_for(crystal: Crystal, user_GPa: float | None, nn_distance_A: fl
     if est is not None:
         return float(est), "estimated from the bond length (Cohen, Phys. Rev. B 32, 7988 (1985))"
     return None, "no measured value in the bundled table and no published estimate applies"
+
+
+# ---------------------------------------------------------------------------------------------- shear constants
+def shear_constants_table() -> dict[tuple, tuple[float, float, float, str, str]]:
+    """(composition, space-group number) → (C11, C12, C44 in GPa, measured phase, source) from
+    data/shear_constants_GPa.csv."""
+    import csv
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "tb" / "data" / "shear_constants_GPa.csv"
+    table = {}
+    with open(path, newline="", encoding="utf-8") as fh:
+        for row in csv.DictReader(line for line in fh if not line.startswith("#")):
+            table[(_formula_composition(row["formula"]), int(row["space_group"]))] = (
+                float(row["c11_GPa"]), float(row["c12_GPa"]), float(row["c44_GPa"]), row["phase"], row["source"])
+    return table
+
+
+def shear_constants_for(crystal: Crystal, space_group_number: int) -> tuple[float, float, float, str, str] | None:
+    """Measured (C11, C12, C44 GPa, phase, source) of the parent's composition in the parent's own space group,
+    or None (no row, or the measured phase is another structure)."""
+    return shear_constants_table().get((_composition(crystal.species), int(space_group_number)))
+
+
+def bending_for_shear(c44_GPa: float, cprime_GPa: float, c44_per_kappa_GPa: float, cprime_per_kappa_GPa: float,
+                      c44_measured_GPa: float, cprime_measured_GPa: float) -> float:
+    """The bond-bending constant κ (eV): the smallest κ ≥ 0 for which the model's C44 and C' = (C11 − C12)/2 both
+    reach their measured values, given their values without the term and what one eV of κ adds to each (the
+    term is quadratic in the strain, so each constant is linear in κ). A constant the term cannot raise is left
+    as it is; a model already as stiff as measured gets κ = 0 (the term never softens)."""
+    need = [0.0]
+    for have, per, want in ((c44_GPa, c44_per_kappa_GPa, c44_measured_GPa),
+                            (cprime_GPa, cprime_per_kappa_GPa, cprime_measured_GPa)):
+        if per > 1e-12 and want > have:
+            need.append((want - have) / per)
+    return float(max(need))

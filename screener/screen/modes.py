@@ -236,7 +236,30 @@ def elastic_force_constants(crystal, elastic, q_frac) -> np.ndarray:
     hess = d2[:, None, None] * nn + (d1 / d)[:, None, None] * (np.eye(3)[None] - nn)
     c = _coefficients(elastic.i, elastic.j, elastic.image, q, crystal.n_atoms)
     na = crystal.n_atoms
-    return np.einsum("ps,pt,pab->satb", np.conj(c), c, hess).reshape(3 * na, 3 * na)
+    phi = np.einsum("ps,pt,pab->satb", np.conj(c), c, hess).reshape(3 * na, 3 * na)
+    if elastic.bending_eV > 0 and len(elastic.angle_cos0):
+        phi = phi + _bending_force_constants(elastic, vec, c, q, na)
+    return phi
+
+
+def _bending_force_constants(elastic, vec, c, q, n_atoms) -> np.ndarray:
+    """(3N, 3N) Φ(q) of the bond-bending term ½ κ Σ (cos θ − cos θ⁰)² at its rest geometry: κ Σ_t g_t* g_tᵀ, with
+    g_t the gradient of cos θ_t in the atoms' Bloch displacements (the curvature term (cos θ − cos θ⁰) ∇²cos θ is 0
+    there). An arm whose bond ends at the shared atom (sign −1) starts one lattice vector R back, so its row of
+    coefficients carries exp(−2πi q·R) to refer it to the shared atom's cell."""
+    pb, sg = elastic.angle_bonds, elastic.angle_signs
+    a, b = vec[pb[:, 0]] * sg[:, :1], vec[pb[:, 1]] * sg[:, 1:]
+    la, lb = np.linalg.norm(a, axis=1)[:, None], np.linalg.norm(b, axis=1)[:, None]
+    cos = np.einsum("ij,ij->i", a, b)[:, None] / (la * lb)
+    grad_a = b / (la * lb) - cos * a / la**2  # ∂cos θ / ∂a
+    grad_b = a / (la * lb) - cos * b / lb**2
+    back = np.exp(-2j * np.pi * (elastic.image @ q))  # (p,) phase of a bond's start cell seen from its end atom
+    coef = []
+    for arm in (0, 1):
+        rows = c[pb[:, arm]] * np.where(sg[:, arm] > 0, 1.0, back[pb[:, arm]])[:, None]
+        coef.append(sg[:, arm][:, None] * rows)  # (t, N): d(arm) = sign · d(bond vector)
+    g = coef[0][:, :, None] * grad_a[:, None, :] + coef[1][:, :, None] * grad_b[:, None, :]  # (t, N, 3)
+    return elastic.bending_eV * np.einsum("psa,pub->saub", np.conj(g), g).reshape(3 * n_atoms, 3 * n_atoms)
 
 
 def stiffness(parent, q_frac, *, mesh=None, states: MeshStates | None = None, method: str = "fermi-dirac",
@@ -592,6 +615,60 @@ def strain_matrix(voigt) -> np.ndarray:
     return e
 
 
+def strained_band_energy_eV(crystal, params, bonds, settings, mesh, rotations, strain) -> float:
+    """Band energy (eV per cell) of ``crystal`` strained as r → r (1 + ε) (ε the symmetric (3, 3) ``strain``), atoms
+    at their fractional positions and bonds following them, on ``mesh`` reduced with the ``rotations`` (parent's,
+    fractional) that keep the strained metric."""
+    from screener.bz.integrate import solve_on_mesh
+    from screener.tb.model import build_model
+
+    rots = np.asarray(rotations)
+    lat = crystal.lattice_A @ (np.eye(3) + np.asarray(strain, dtype=float))
+    metric = lat @ lat.T
+    keep = np.array([np.allclose(r.T @ metric @ r, metric, atol=1e-9 * np.abs(metric).max())
+                     for r in np.transpose(rots, (0, 2, 1))], dtype=bool)
+    model = build_model(crystal.replace(lattice_A=lat), params, bonds=bonds)
+    return solve_on_mesh(model, mesh, method=settings.method, width_eV=settings.width_eV,
+                         symprec=settings.symprec_A, rotations=rots[keep]).band_energy_eV
+
+
+def cube_axes(point_group_cart) -> np.ndarray | None:
+    """(3, 3) the cube axes of a cubic point group as rows (Cartesian unit vectors), or None if the group is not
+    cubic. Every cubic point group has four 3-fold axes (the body diagonals u); two of them at cos = −1/3 add up
+    along a cube axis (common practice, no source: the geometry of the cube)."""
+    axes = []
+    for r in np.asarray(point_group_cart, dtype=float):
+        p = r * np.sign(np.linalg.det(r))  # proper part
+        if abs(np.trace(p)) > 1e-6 or np.allclose(p, np.eye(3), atol=1e-6):
+            continue  # a 3-fold rotation has trace 1 + 2 cos 120° = 0
+        w, v = np.linalg.eig(p)
+        u = np.real(v[:, np.argmin(np.abs(w - 1))])
+        u = u / np.linalg.norm(u)
+        if not any(abs(abs(u @ x) - 1) < 1e-6 for x in axes):
+            axes.append(u)
+    if len(axes) != 4:
+        return None
+    cube = []
+    for a in range(4):
+        for b in range(a + 1, 4):
+            d = axes[a] + (-np.sign(axes[a] @ axes[b])) * axes[b]
+            d = d / np.linalg.norm(d)
+            if not any(abs(abs(d @ x) - 1) < 1e-6 for x in cube):
+                cube.append(d)
+    if len(cube) != 3 or not np.allclose(np.abs(np.array(cube) @ np.array(cube).T), np.eye(3), atol=1e-6):
+        return None
+    return np.array(cube)
+
+
+def cubic_shear_strains(axes, step: float) -> tuple[np.ndarray, np.ndarray]:
+    """The two shear strains of a cubic crystal with cube ``axes`` (rows): γ_yz = ``step`` (energy ½ V C44 γ²)
+    and ε_xx = −ε_yy = ``step`` (energy 2 V C' ε², C' = (C11 − C12)/2), as Cartesian (3, 3) tensors."""
+    x, y, z = np.asarray(axes, dtype=float)
+    trig = 0.5 * step * (np.outer(y, z) + np.outer(z, y))
+    tetra = step * (np.outer(x, x) - np.outer(y, y))
+    return trig, tetra
+
+
 def strain_stiffness(parent, *, step: float = 0.005, mesh=None) -> StrainStiffness:
     """The parent's 6 × 6 elastic constants from its model (band energy + the closure in use), clamped ions.
 
@@ -601,10 +678,8 @@ def strain_stiffness(parent, *, step: float = 0.005, mesh=None) -> StrainStiffne
     on the parent's k-mesh (the one its closure was fitted on); the mesh of each strained cell is reduced with the
     parent's rotations that keep the strained metric.
     """
-    from screener.bz.integrate import solve_on_mesh
     from screener.bz.kmesh import mesh_from_spacing
     from screener.screen.closure import elastic_model_for
-    from screener.tb.model import build_model
 
     crystal, settings, bonds = parent.crystal, parent.settings, parent.bonds
     if not all(parent.model.periodic):
@@ -619,13 +694,9 @@ def strain_stiffness(parent, *, step: float = 0.005, mesh=None) -> StrainStiffne
     def energy(voigt) -> float:
         key = tuple(np.round(voigt, 12))
         if key not in cache:
-            lat = crystal.lattice_A @ (np.eye(3) + strain_matrix(voigt))
-            metric = lat @ lat.T
-            keep = np.array([np.allclose(r.T @ metric @ r, metric, atol=1e-9 * np.abs(metric).max())
-                             for r in np.transpose(rots, (0, 2, 1))])
-            model = build_model(crystal.replace(lattice_A=lat), parent.params, bonds=bonds)
-            band = solve_on_mesh(model, mesh, method=settings.method, width_eV=settings.width_eV,
-                                 symprec=settings.symprec_A, rotations=rots[keep]).band_energy_eV
+            strain = strain_matrix(voigt)
+            lat = crystal.lattice_A @ (np.eye(3) + strain)
+            band = strained_band_energy_eV(crystal, parent.params, bonds, settings, mesh, rots, strain)
             cache[key] = band + el.energy_eV(lat, crystal.frac)
         return cache[key]
 

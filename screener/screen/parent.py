@@ -18,10 +18,13 @@ from screener.bz.kmesh import mesh_from_spacing
 from screener.errors import ParameterError
 from screener.screen.closure import (
     BULK_MODULUS_SPREAD,
+    RepulsionPrefactor,
+    bending_for_shear,
     bulk_modulus_for,
     elastic_model_for,
     exponent_for_bulk_modulus,
     pair_repulsion_prefactor_eV,
+    shear_constants_for,
 )
 from screener.screen.settings import ScreenSettings
 from screener.structure.crystal import Crystal, supercell_pairs
@@ -61,7 +64,15 @@ class ParentEnergetics:
     bulk_modulus_source: str = ""
     """Where the bulk modulus came from (user, bundled table with its source, estimate), or why there is none."""
     ensemble: tuple = ()
-    """Closure members spanning its uncertainty: (label, A in eV, m) each; the nominal member is the middle one."""
+    """Closure members spanning its uncertainty: (label, A in eV, m) each; the nominal member is the middle one. A is
+    a `RepulsionPrefactor` carrying the member's bond-bending constant κ (0 without the term)."""
+    shear_closure: str = "none"
+    """'bond-bending' (κ fitted to measured shear constants) or 'none' (pair terms only)."""
+    bending_eV: float = 0.0
+    """Bond-bending constant κ of the nominal member, eV (0 without the term)."""
+    shear_source: str = ""
+    """Which shear closure was used and why: the measured C44 and C' with their source and the model's values
+    without and with the term, or why there is no term."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -250,6 +261,7 @@ def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet 
         # the exponent range m ± 1 around the fixed exponent, in both directions (common practice, no source)
         for label, m in (("m − 1", max(m0 - 1.0, 0.5)), ("m", m0), ("m + 1", m0 + 1.0)):
             ensemble.append((f"{label} = {m:g}", pair_repulsion_prefactor_eV(slope, n_rep, m), m))
+    ensemble, shear_closure, shear_source = _fit_bending(parent, params, model, mesh, r0.band_energy_eV, ensemble)
     _, a, exponent = ensemble[1]
     return ParentEnergetics(
         fermi_level_eV=r0.fermi_level_eV,
@@ -265,4 +277,68 @@ def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet 
         bulk_modulus_GPa=b_gpa,
         bulk_modulus_source=b_source,
         ensemble=tuple(ensemble),
+        shear_closure=shear_closure,
+        bending_eV=float(getattr(a, "bending_eV", 0.0)),
+        shear_source=shear_source,
     )
+
+
+#: Strain step of the finite differences the shear fit uses (the default of `strain_stiffness`, so the fitted model
+#: reproduces the measured constants there to rounding).
+SHEAR_FIT_STEP = 0.005
+
+
+def _fit_bending(parent: Parent, params: ParameterSet, model, mesh, band0_eV: float, ensemble: list
+                 ) -> tuple[list, str, str]:
+    """Each closure member with its bond-bending constant κ fitted to the measured shear constants of the parent's
+    phase (`bending_for_shear`), or unchanged with the reason there is none. Returns (members, shear closure, what
+    was used)."""
+    from screener.screen.modes import cube_axes, cubic_shear_strains, strained_band_energy_eV
+
+    crystal, settings, bonds = parent.crystal, parent.settings, parent.bonds
+    hit = shear_constants_for(crystal, parent.symmetry.number)
+    if hit is None:
+        return ensemble, "none", ("no measured shear constants of this composition in this space group in the "
+                                  "bundled table: pair terms only, no bond-bending term")
+    c11, c12, c44, phase, source = hit
+    cp = 0.5 * (c11 - c12)
+    axes = cube_axes(parent.point_group_cart)
+    if not all(model.periodic) or axes is None:
+        return ensemble, "none", "measured shear constants exist but the cell is not a cubic 3-D crystal: no bending term"
+    from screener.screen.modes import EV_PER_A3_IN_GPA
+
+    h, vol, frac = SHEAR_FIT_STEP, crystal.volume_A3, crystal.frac
+    strains = cubic_shear_strains(axes, h)
+    per = (1.0 / (vol * h * h), 1.0 / (4 * vol * h * h))  # second difference → C44, → C'
+    rots = parent.symmetry.rotations
+
+    def second_difference(energy, strain):
+        return (energy(strain) - 2 * energy(np.zeros((3, 3))) + energy(-strain))
+
+    def band(strain):
+        if not np.any(strain):
+            return band0_eV
+        return strained_band_energy_eV(crystal, params, bonds, settings, mesh, rots, strain)
+
+    band_c = [second_difference(band, e) * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
+    unit = elastic_model_for(crystal, params, bonds, RepulsionPrefactor(0.0, 1.0), 1.0)
+    bend_c = [second_difference(lambda e: unit.bending_energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac), e)
+              * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
+    out, notes = [], []
+    for label, a, m in ensemble:
+        el = elastic_model_for(crystal, params, bonds, float(a), m)
+        pair_c = [second_difference(lambda e, el=el: el.energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac), e)
+                  * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
+        c0 = [b + q for b, q in zip(band_c, pair_c, strict=True)]
+        kappa = bending_for_shear(c0[0], c0[1], bend_c[0], bend_c[1], c44, cp)
+        out.append((label, RepulsionPrefactor(float(a), kappa), m))
+        notes.append((c0, [x + kappa * u for x, u in zip(c0, bend_c, strict=True)], kappa))
+    (c0, c1, kappa) = notes[len(notes) // 2]
+    if not any(k > 0 for _, _, k in notes):
+        return out, "none", (f"the pair closure already reaches the measured shear constants of {phase} (model C44 "
+                             f"{c0[0]:.1f} ≥ {c44:g}, C' {c0[1]:.1f} ≥ {cp:.4g} GPa, clamped ions; {source}; bundled "
+                             "table): no bond-bending term")
+    text = (f"bond bending fitted to the measured shear constants of {phase} (C44 = {c44:g}, C' = {cp:.4g} GPa; "
+            f"{source}; bundled table): nominal κ = {kappa:.4g} eV; model C44 {c0[0]:.1f} → {c1[0]:.1f}, "
+            f"C' {c0[1]:.1f} → {c1[1]:.1f} GPa (clamped ions)")
+    return out, "bond-bending", text

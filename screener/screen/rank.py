@@ -135,7 +135,10 @@ class RankResult:
                 "kind": self.parent.closure,
                 "bulk_modulus_GPa": self.parent.bulk_modulus_GPa,
                 "bulk_modulus_source": self.parent.bulk_modulus_source,
-                "members": [{"label": lab, "hoppings": f"Harrison {hs}", "pair_repulsion_eV": a, "pair_exponent": m}
+                "shear": self.parent.shear_closure,
+                "shear_source": self.parent.shear_source,
+                "members": [{"label": lab, "hoppings": f"Harrison {hs}", "pair_repulsion_eV": float(a),
+                             "pair_exponent": m, "bending_eV": float(getattr(a, "bending_eV", 0.0))}
                             for hs, ens in self._ensembles() for lab, a, m in ens],
             },
             "screened_cell_atoms": self.screened_atoms,

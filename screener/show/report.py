@@ -12,10 +12,13 @@ _STRUCTURE_ENDINGS = (".cif", ".json")
 
 def _closure_line(parent) -> str:
     if parent.closure == "bulk-modulus":
-        return (f"closure: fitted to equilibrium and B = {parent.bulk_modulus_GPa:.1f} GPa ± 25 % "
+        line = (f"closure: fitted to equilibrium and B = {parent.bulk_modulus_GPa:.1f} GPa ± 25 % "
                 f"({parent.bulk_modulus_source})")
-    ms = "/".join(f"{m:g}" for _, _, m in parent.ensemble)
-    return f"closure: fitted to equilibrium only, m = {ms} ({parent.bulk_modulus_source})"
+    else:
+        ms = "/".join(f"{m:g}" for _, _, m in parent.ensemble)
+        line = f"closure: fitted to equilibrium only, m = {ms} ({parent.bulk_modulus_source})"
+    shear = getattr(parent, "shear_source", "")
+    return f"{line}\nshear: {shear}" if shear else line
 
 
 def format_rank_text(result: RankResult, source: str = "") -> str:
