@@ -290,6 +290,13 @@ def rank(crystal: Crystal, params=None, *, generators=None, extra_q=(), settings
     finally:
         bar.close()
     results = [_in_input_setting(c, context) for c in results]
+    if "soft-mode" not in (generators or ()):
+        # say what a "stable" rests on: the named patterns at these q, not a search of every pattern
+        qs = sorted({c.q_label for c in results})
+        notes.append(f"searched: the {', '.join(sorted({c.generator for c in results}))} patterns at q = "
+                     f"{', '.join(qs) or 'none'} (input cell); the survey of every pattern over the whole q-grid "
+                     "(--generator soft-mode, several times slower) was not run, so 'stable' means none of these "
+                     "patterns gains")
     # the headline is the most severe verdict, then the largest gain
     results.sort(key=lambda c: (SEVERITY[c.verdict], c.delta_E_meV_per_atom, c.generator))
     return RankResult(
