@@ -103,7 +103,7 @@ class _Evaluator:
     """Evaluates band and elastic energies of a family's members at fixed bonds and mesh."""
 
     def __init__(self, family: DistortionFamily, params, elastic_prefactor_eV: float, exponent: float,
-                 settings: ScreenSettings, bonds=None, reference_rotations=None, ensemble=()):
+                 settings: ScreenSettings, bonds=None, reference_rotations=None, ensemble=(), bending_eV: float = 0.0):
         from screener.tb.bonds import find_bonds
         from screener.tb.model import build_model
 
@@ -116,9 +116,10 @@ class _Evaluator:
         # symmetry of the undistorted reference, when already known from the parent (no new search at λ = 0)
         self.reference_rotations = reference_rotations
         self.model0 = build_model(ref, params, bonds=self.bonds)
-        self.elastic = elastic_model_for(ref, params, self.bonds, elastic_prefactor_eV, exponent)
+        self.elastic = elastic_model_for(ref, params, self.bonds, elastic_prefactor_eV, exponent, bending_eV)
         # the closure's uncertainty range: one elastic model per member (geometry only, no diagonalisation)
-        self.members = [elastic_model_for(ref, params, self.bonds, a, m) for _, a, m in ensemble] or [self.elastic]
+        self.members = [elastic_model_for(ref, params, self.bonds, a, m, k) for _, a, m, k in ensemble] or [
+            self.elastic]
         self.n_atoms = ref.n_atoms
         self._build = build_model
         self._member_rotations = None
@@ -200,7 +201,7 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     m = family.supercell_matrix
     ev = _Evaluator(family, params, parent.repulsion_eV, parent.pair_exponent, settings,
                     bonds=context.supercell_bonds(m, ref), reference_rotations=context.supercell_rotations(m),
-                    ensemble=parent.ensemble)
+                    ensemble=parent.ensemble, bending_eV=parent.bending_eV)
     mesh = family_mesh(family, settings.k_step_per_A, ev.model0.periodic)
     nn = context.supercell_shells(m, ref)
     d_min = float(nn.distance_A.min())
@@ -232,7 +233,8 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
         # the other hopping set with its nominal closure
         ev_alt = _Evaluator(family, context.alternative_params, alt.repulsion_eV, alt.pair_exponent, settings,
                             bonds=ev.bonds, reference_rotations=ev.reference_rotations,
-                            ensemble=alt.ensemble[len(alt.ensemble) // 2:len(alt.ensemble) // 2 + 1])
+                            ensemble=alt.ensemble[len(alt.ensemble) // 2:len(alt.ensemble) // 2 + 1],
+                            bending_eV=alt.bending_eV)
         e_alt = cached(ev_alt)
 
     e0b, e0e, _, _ = e_at(0.0)

@@ -17,9 +17,8 @@ the angular three-body form of the valence-force-field models (P. N. Keating, Ph
 in bond-vector dot products; F. H. Stillinger & T. A. Weber, Phys. Rev. B 31, 5262 (1985) in cos θ). It is zero with
 zero slope at the parent and invariant under uniform scaling and rigid rotations, so the equilibrium, the bulk
 modulus and the fit of A and m are untouched; κ ≥ 0 is the smallest value for which the model's clamped-ion C44 and
-C' = (C11 − C12)/2 both reach their measured values (`bending_for_shear`). The pair-repulsion prefactor is then
-handed around as a `RepulsionPrefactor` (a float that also carries κ), so every place that builds an ElasticModel
-from (A, m) gets the whole closure.
+C' = (C11 − C12)/2 both reach their measured values (`bending_for_shear`). Each closure member is (label, A, m, κ),
+and `elastic_model_for` takes κ as an argument of its own, so no place builds half a closure.
 """
 
 from __future__ import annotations
@@ -105,22 +104,6 @@ class ElasticModel:
         return float(rep.sum() + spr.sum()) + self.bending_energy_eV(lattice_A, frac, img)
 
 
-class RepulsionPrefactor(float):
-    """The pair-repulsion prefactor A (eV, behaves as the float A) of one closure member, carrying that member's
-    bond-bending constant κ (``bending_eV``, eV; 0 without a bending term)."""
-
-    def __new__(cls, value: float, bending_eV: float = 0.0):
-        obj = super().__new__(cls, value)
-        obj.bending_eV = float(bending_eV)
-        return obj
-
-    def __reduce__(self):
-        return (type(self), (float(self), self.bending_eV))
-
-    def __repr__(self) -> str:
-        return f"{float(self)!r}" if self.bending_eV == 0 else f"{float(self)!r} (κ = {self.bending_eV!r})"
-
-
 def bond_pairs(i: np.ndarray, j: np.ndarray, n_atoms: int) -> tuple[np.ndarray, np.ndarray]:
     """Every pair of bonds meeting at an atom: ((t, 2) bond indices, (t, 2) signs, +1 where the atom is the bond's
     i, −1 where it is its j). A bond from an atom to its own image meets that atom twice (both arms count)."""
@@ -189,17 +172,18 @@ def _spring_per_bond(crystal: Crystal, params, i: np.ndarray, j: np.ndarray) -> 
     return springs
 
 
-def elastic_model_for(crystal: Crystal, params, bonds, repulsion_eV: float, exponent: float) -> ElasticModel:
+def elastic_model_for(crystal: Crystal, params, bonds, repulsion_eV: float, exponent: float,
+                      bending_eV: float = 0.0) -> ElasticModel:
     """ElasticModel over the model's bonds (each once): springs where the parameters give one, else repulsion;
-    plus the bond-bending term over every pair of those bonds meeting at an atom when ``repulsion_eV`` is a
-    `RepulsionPrefactor` with κ > 0 (rest angles from ``crystal``)."""
+    plus, with ``bending_eV`` = κ > 0, the bond-bending term over every pair of those bonds meeting at an atom
+    (rest angles from ``crystal``)."""
     keep = unique_bond_mask(bonds.i, bonds.j, bonds.image)
     i, j, image = bonds.i[keep], bonds.j[keep], bonds.image[keep]
     d0 = bond_lengths_A(crystal.lattice_A, crystal.frac, i, j, image)
     springs = _spring_per_bond(crystal, params, i, j)
     rep = np.where(springs > 0, 0.0, float(repulsion_eV))
     el = ElasticModel(i, j, image, d0, rep, springs, float(exponent))
-    kappa = float(getattr(repulsion_eV, "bending_eV", 0.0))
+    kappa = float(bending_eV)
     if kappa == 0:
         return el
     if not kappa > 0:

@@ -151,9 +151,9 @@ class _Path:
         self.context, self.observed, self.mesh = context, observed, mesh
         self.parent = context.crystal
         en = context.energetics
-        self.members = [elastic_model_for(self.parent, context.params, context.bonds, a, m)
-                        for _, a, m in en.ensemble]
-        self.labels = tuple(lab for lab, _, _ in en.ensemble)
+        self.members = [elastic_model_for(self.parent, context.params, context.bonds, a, m, k)
+                        for _, a, m, k in en.ensemble]
+        self.labels = tuple(member[0] for member in en.ensemble)
         self.nominal = len(self.members) // 2
         d = observed.frac - self.parent.frac
         d -= np.rint(d)

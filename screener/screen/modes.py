@@ -273,7 +273,8 @@ def stiffness(parent, q_frac, *, mesh=None, states: MeshStates | None = None, me
             raise ParameterError("give a k-mesh (mesh=...) or precomputed states for the stiffness")
         states = mesh_states(model, mesh, method=method, width_eV=width_eV, n_electrons=n_electrons)
     en = parent.energetics
-    el = elastic_model_for(parent.crystal, parent.params, parent.bonds, en.repulsion_eV, en.pair_exponent)
+    el = elastic_model_for(parent.crystal, parent.params, parent.bonds, en.repulsion_eV, en.pair_exponent,
+                           en.bending_eV)
     band = band_force_constants(model, states, q_frac)
     elas = elastic_force_constants(parent.crystal, el, q_frac)
     vals, vecs = np.linalg.eigh(band + elas)
@@ -685,7 +686,7 @@ def strain_stiffness(parent, *, step: float = 0.005, mesh=None) -> StrainStiffne
     if not all(parent.model.periodic):
         raise ParameterError("elastic constants need a crystal periodic in three directions (this cell has vacuum)")
     en = parent.energetics
-    el = elastic_model_for(crystal, parent.params, bonds, en.repulsion_eV, en.pair_exponent)
+    el = elastic_model_for(crystal, parent.params, bonds, en.repulsion_eV, en.pair_exponent, en.bending_eV)
     if mesh is None:
         mesh = mesh_from_spacing(crystal, settings.k_step_per_A * settings.refine_factor, parent.model.periodic)
     rots = np.asarray(parent.symmetry.rotations)

@@ -18,7 +18,6 @@ from screener.bz.kmesh import mesh_from_spacing
 from screener.errors import ParameterError
 from screener.screen.closure import (
     BULK_MODULUS_SPREAD,
-    RepulsionPrefactor,
     bending_for_shear,
     bulk_modulus_for,
     elastic_model_for,
@@ -64,8 +63,8 @@ class ParentEnergetics:
     bulk_modulus_source: str = ""
     """Where the bulk modulus came from (user, bundled table with its source, estimate), or why there is none."""
     ensemble: tuple = ()
-    """Closure members spanning its uncertainty: (label, A in eV, m) each; the nominal member is the middle one. A is
-    a `RepulsionPrefactor` carrying the member's bond-bending constant κ (0 without the term)."""
+    """Closure members spanning its uncertainty: (label, A in eV, m, κ in eV) each, κ the member's bond-bending
+    constant (0 without the term); the nominal member is the middle one."""
     shear_closure: str = "none"
     """'bond-bending' (κ fitted to measured shear constants) or 'none' (pair terms only)."""
     bending_eV: float = 0.0
@@ -244,7 +243,8 @@ def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet 
         try:
             for label, f in (("B − 25 %", 1 - BULK_MODULUS_SPREAD), ("B", 1.0), ("B + 25 %", 1 + BULK_MODULUS_SPREAD)):
                 m = exponent_for_bulk_modulus(b_gpa * f, crystal.volume_A3, slope, curv)
-                ensemble.append((f"{label} = {b_gpa * f:.1f} GPa", pair_repulsion_prefactor_eV(slope, n_rep, m), m))
+                ensemble.append((f"{label} = {b_gpa * f:.1f} GPa", pair_repulsion_prefactor_eV(slope, n_rep, m), m,
+                                 0.0))
         except ParameterError as exc:
             if settings.bulk_modulus_GPa is not None:
                 raise
@@ -260,9 +260,9 @@ def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet 
         m0 = settings.pair_exponent
         # the exponent range m ± 1 around the fixed exponent, in both directions (common practice, no source)
         for label, m in (("m − 1", max(m0 - 1.0, 0.5)), ("m", m0), ("m + 1", m0 + 1.0)):
-            ensemble.append((f"{label} = {m:g}", pair_repulsion_prefactor_eV(slope, n_rep, m), m))
+            ensemble.append((f"{label} = {m:g}", pair_repulsion_prefactor_eV(slope, n_rep, m), m, 0.0))
     ensemble, shear_closure, shear_source = _fit_bending(parent, params, model, mesh, r0.band_energy_eV, ensemble)
-    _, a, exponent = ensemble[1]
+    _, a, exponent, kappa = ensemble[1]
     return ParentEnergetics(
         fermi_level_eV=r0.fermi_level_eV,
         band_energy_eV_per_atom=r0.band_energy_eV / n,
@@ -278,7 +278,7 @@ def parent_energetics(parent: Parent, step: float = 0.004, params: ParameterSet 
         bulk_modulus_source=b_source,
         ensemble=tuple(ensemble),
         shear_closure=shear_closure,
-        bending_eV=float(getattr(a, "bending_eV", 0.0)),
+        bending_eV=float(kappa),
         shear_source=shear_source,
     )
 
@@ -321,17 +321,17 @@ def _fit_bending(parent: Parent, params: ParameterSet, model, mesh, band0_eV: fl
         return strained_band_energy_eV(crystal, params, bonds, settings, mesh, rots, strain)
 
     band_c = [second_difference(band, e) * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
-    unit = elastic_model_for(crystal, params, bonds, RepulsionPrefactor(0.0, 1.0), 1.0)
+    unit = elastic_model_for(crystal, params, bonds, 0.0, 1.0, bending_eV=1.0)
     bend_c = [second_difference(lambda e: unit.bending_energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac), e)
               * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
     out, notes = [], []
-    for label, a, m in ensemble:
-        el = elastic_model_for(crystal, params, bonds, float(a), m)
+    for label, a, m, _ in ensemble:
+        el = elastic_model_for(crystal, params, bonds, a, m)
         pair_c = [second_difference(lambda e, el=el: el.energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac), e)
                   * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
         c0 = [b + q for b, q in zip(band_c, pair_c, strict=True)]
         kappa = bending_for_shear(c0[0], c0[1], bend_c[0], bend_c[1], c44, cp)
-        out.append((label, RepulsionPrefactor(float(a), kappa), m))
+        out.append((label, a, m, kappa))
         notes.append((c0, [x + kappa * u for x, u in zip(c0, bend_c, strict=True)], kappa))
     (c0, c1, kappa) = notes[len(notes) // 2]
     if not any(k > 0 for _, _, k in notes):

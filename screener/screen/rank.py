@@ -138,8 +138,8 @@ class RankResult:
                 "shear": self.parent.shear_closure,
                 "shear_source": self.parent.shear_source,
                 "members": [{"label": lab, "hoppings": f"Harrison {hs}", "pair_repulsion_eV": float(a),
-                             "pair_exponent": m, "bending_eV": float(getattr(a, "bending_eV", 0.0))}
-                            for hs, ens in self._ensembles() for lab, a, m in ens],
+                             "pair_exponent": m, "bending_eV": float(k)}
+                            for hs, ens in self._ensembles() for lab, a, m, k in ens],
             },
             "screened_cell_atoms": self.screened_atoms,
             "notes": list(self.notes),

@@ -15,7 +15,7 @@ def _closure_line(parent) -> str:
         line = (f"closure: fitted to equilibrium and B = {parent.bulk_modulus_GPa:.1f} GPa ± 25 % "
                 f"({parent.bulk_modulus_source})")
     else:
-        ms = "/".join(f"{m:g}" for _, _, m in parent.ensemble)
+        ms = "/".join(f"{member[2]:g}" for member in parent.ensemble)
         line = f"closure: fitted to equilibrium only, m = {ms} ({parent.bulk_modulus_source})"
     shear = getattr(parent, "shear_source", "")
     return f"{line}\nshear: {shear}" if shear else line

@@ -38,7 +38,7 @@ def test_bulk_modulus_calibration_gives_that_curvature():
     settings = ScreenSettings(bulk_modulus_GPa=40.0)
     parent = build_parent(crystal, params, settings).energetics
     bonds = find_bonds(crystal, params)
-    el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent)
+    el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent, parent.bending_eV)
     mesh = parent.kmesh
 
     def total(s):

@@ -128,7 +128,7 @@ def test_pair_repulsion_holds_parent_in_equilibrium():
     mesh = parent.kmesh
     from screener.screen.closure import elastic_model_for
 
-    el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent)
+    el = elastic_model_for(crystal, params, bonds, parent.repulsion_eV, parent.pair_exponent, parent.bending_eV)
 
     def total(s):
         c = crystal.replace(lattice_A=crystal.lattice_A * (1 + s))

@@ -8,14 +8,13 @@ u_s(L) = Re e_s exp(2πi q·L), ½ eᵀΦe per cell for q ≡ −q and ¼ e†Φ
 Crystal Lattices, 1954 — from memory); Taylor's theorem for the finite differences.
 """
 
-import pickle
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 import pytest
 
-from screener.screen.closure import RepulsionPrefactor, bending_for_shear, elastic_model_for, shear_constants_for
+from screener.screen.closure import bending_for_shear, elastic_model_for, shear_constants_for
 from screener.screen.modes import cube_axes, elastic_force_constants, stiffness, strain_stiffness
 from screener.screen.parent import build_parent
 from screener.structure.formats import read_structure
@@ -51,7 +50,7 @@ def test_fitted_model_reproduces_the_measured_shear_constants(name, al, na):
     # the bulk modulus is untouched (analytic: the term is invariant under uniform scaling): the same parent with
     # the pair closure alone has the same C11 + 2 C12
     bare = build_parent(p.input_crystal)
-    bare.__dict__["energetics"] = replace(en, repulsion_eV=float(en.repulsion_eV))  # κ = 0, same A and m
+    bare.__dict__["energetics"] = replace(en, bending_eV=0.0)  # κ = 0, same A and m
     c_bare = strain_stiffness(bare).elastic_constants_GPa
     assert c_bare[3, 3] < c44  # the pair closure alone falls short of the measured C44 (the reason for the term)
     assert c[0, 0] + 2 * c[0, 1] == pytest.approx(c_bare[0, 0] + 2 * c_bare[0, 1], rel=1e-3)
@@ -59,9 +58,9 @@ def test_fitted_model_reproduces_the_measured_shear_constants(name, al, na):
 
 def test_every_member_of_the_closure_range_carries_its_own_bending_constant(al):
     members = al.energetics.ensemble
-    assert all(isinstance(a, RepulsionPrefactor) for _, a, _ in members)
+    assert all(len(member) == 4 for member in members)  # (label, A, m, κ)
     # a softer pair repulsion (smaller m, the B − 25 % member) leaves more shear to the bending term
-    kappas = [a.bending_eV for _, a, _ in members]
+    kappas = [k for _, _, _, k in members]
     assert kappas[0] >= kappas[1] >= kappas[2] >= 0
 
 
@@ -73,14 +72,15 @@ def test_bending_force_constants_equal_finite_differences_of_the_energy():
     en = p.energetics
     assert en.bending_eV > 0
     cr = p.crystal
-    el = elastic_model_for(cr, p.params, p.bonds, en.repulsion_eV, en.pair_exponent)
+    el = elastic_model_for(cr, p.params, p.bonds, en.repulsion_eV, en.pair_exponent, en.bending_eV)
     rng = np.random.default_rng(7)
     for q, real in (((0.0, 0.5, 0.5), True), ((0.0, 0.0, 0.25), False)):
         q = np.array(q)
         den = [int(round(1 / x)) if x else 1 for x in q]
         m = np.diag(den)
         ref = cr.supercell(m)
-        el_s = elastic_model_for(ref, p.params, p.supercell_bonds(m, ref), en.repulsion_eV, en.pair_exponent)
+        el_s = elastic_model_for(ref, p.params, p.supercell_bonds(m, ref), en.repulsion_eV, en.pair_exponent,
+                                 en.bending_eV)
         e = rng.normal(size=3 * cr.n_atoms) + (0 if real else 1j * rng.normal(size=3 * cr.n_atoms))
         n = int(np.prod(den))
         sites = np.repeat(np.arange(cr.n_atoms), n)
@@ -110,7 +110,7 @@ def test_acoustic_sum_rule_holds_with_the_bending_term():
 def test_the_bending_energy_ignores_rigid_rotations_and_uniform_scaling(al):
     # analytic: angles do not change under a rotation or a uniform scaling of the whole crystal
     en = al.energetics
-    el = elastic_model_for(al.crystal, al.params, al.bonds, RepulsionPrefactor(0.0, 1.0), en.pair_exponent)
+    el = elastic_model_for(al.crystal, al.params, al.bonds, 0.0, en.pair_exponent, bending_eV=1.0)
     t = 0.3
     rot = np.array([[np.cos(t), -np.sin(t), 0], [np.sin(t), np.cos(t), 0], [0, 0, 1]])
     lat = al.crystal.lattice_A
@@ -145,10 +145,4 @@ def test_parents_without_measured_shear_constants_keep_the_pair_closure():
         en = _parent(name).energetics
         assert en.shear_closure == "none" and en.bending_eV == 0
         assert "no measured shear constants" in en.shear_source
-        assert all(getattr(a, "bending_eV", 0.0) == 0 for _, a, _ in en.ensemble)
-
-
-def test_the_prefactor_keeps_its_bending_constant_through_pickling():
-    a = RepulsionPrefactor(2.5, 0.25)
-    b = pickle.loads(pickle.dumps(a))
-    assert float(b) == 2.5 and b.bending_eV == 0.25 and b * 2 == 5.0
+        assert all(k == 0 for _, _, _, k in en.ensemble)

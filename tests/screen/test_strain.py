@@ -87,7 +87,7 @@ def test_quadratic_form_reproduces_the_energy_of_a_small_mixed_strain():
     s = strain_stiffness(p)
     eps = np.array([0.004, -0.002, 0.001, 0.003, -0.001, 0.002])
     en = p.energetics
-    el = elastic_model_for(p.crystal, p.params, p.bonds, en.repulsion_eV, en.pair_exponent)
+    el = elastic_model_for(p.crystal, p.params, p.bonds, en.repulsion_eV, en.pair_exponent, en.bending_eV)
 
     def energy(voigt):
         lat = p.crystal.lattice_A @ (np.eye(3) + strain_matrix(voigt))

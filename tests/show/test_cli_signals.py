@@ -18,8 +18,9 @@ pytestmark = pytest.mark.skipif(os.name != "posix", reason="POSIX signals")
 def _stop(sig, after_s):
     # rank of a 2-atom parent on a fine k-step takes several seconds (about 4.6 s of CPU here): the signal arrives
     # while imports or the screen are running, however fast the default screen becomes
-    proc = subprocess.Popen([sys.executable, "-m", "screener", "rank", str(DATA / "GeTe_rocksalt_parent.cif"), "--quiet",
-                             "--k-step", "0.07"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    cmd = [sys.executable, "-m", "screener", "rank", str(DATA / "GeTe_rocksalt_parent.cif"), "--quiet",
+           "--k-step", "0.07"]
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     time.sleep(after_s)
     proc.send_signal(sig)
     out, err = proc.communicate(timeout=60)
