@@ -124,8 +124,11 @@ class _RowWindow:
     (1994), App. B); the piece coefficients are formed once, so each evaluation is a few passes over the rows.
     """
 
-    def __init__(self, cols: list[np.ndarray], below: float, mult: np.ndarray | None = None):
+    def __init__(self, cols: list[np.ndarray], below: float, mult: np.ndarray | None = None,
+                 rows: np.ndarray | None = None, lo: float = -np.inf, hi: float = np.inf):
         self.below = below  # rows wholly at or below the bracket's lower end
+        # every row overlapping (lo, hi] is held (perhaps more); ``rows`` names each, b·U + t, in band-then-row order
+        self.lo, self.hi = lo, hi
         a1, a2, a3, a4 = cols
         # each row stands for ``mult`` grid rows (None: one): the multiplicity is folded into the coefficients
         w = np.ones(len(a1)) if mult is None else mult
@@ -133,7 +136,8 @@ class _RowWindow:
             d21, d31, d41, d32, d42, d43 = a2 - a1, a3 - a1, a4 - a1, a3 - a2, a4 - a2, a4 - a3
             q = w / (d31 * d41)
             self.arrays = [a1, a2, a3, a4, w / (d21 * d31 * d41), w / (d41 * d42 * d43),
-                           d21 * d21 * q, 3 * d21 * q, 3 * q, (d31 + d42) / (d32 * d42) * q, w]
+                           d21 * d21 * q, 3 * d21 * q, 3 * q, (d31 + d42) / (d32 * d42) * q, w,
+                           np.zeros(len(a1), dtype=np.int64) if rows is None else rows]
 
     def __len__(self) -> int:
         return len(self.arrays[0])
@@ -148,11 +152,19 @@ class _RowWindow:
         new = object.__new__(_RowWindow)
         new.below = self.below + float(self.arrays[10][a4 <= lo].sum())
         new.arrays = [x[keep] for x in self.arrays]
+        new.lo, new.hi = lo, hi
         return new
+
+    def straddling(self, lo: float, hi: float) -> np.ndarray | None:
+        """Row ids b·U + t (band-then-row order) of the rows with highest corner > lo and lowest < hi, or None
+        when (lo, hi) is not inside the bracket this window holds every row of."""
+        if not (self.lo <= lo and hi <= self.hi):
+            return None
+        return self.arrays[11][(self.arrays[3] > lo) & (self.arrays[0] < hi)]
 
     def count_slope(self, eps: float) -> tuple[float, float]:
         """(rows below eps counting partial ones fractionally, d/dε of that), rows per eV."""
-        a1, a2, a3, a4, i1, i3, p0, p1, p2, p3, w = self.arrays
+        a1, a2, a3, a4, i1, i3, p0, p1, p2, p3, w = self.arrays[:11]
         # the pieces exclude rows wholly at or below eps (a row whose top corners all sit at eps is one of them);
         # piece k holds ε_k < eps ≤ ε_k+1, each gathered by index
         done = a4 <= eps
@@ -224,6 +236,7 @@ class _TetrahedronGrid:
         self.emin = float(self.band_min.min())
         self.emax = float(self.band_max.max())
         self._rows_of_band: list = [None] * nb
+        self._win: _RowWindow | None = None  # the last Fermi-level window, whose rows the occupations reuse
 
     # ------------------------------------------------------------------------------------------ row access
     def band_rows(self, b: int) -> tuple[np.ndarray, np.ndarray]:
@@ -294,13 +307,14 @@ class _TetrahedronGrid:
 
         A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
         """
-        parts, mult = [], []
+        parts, mult, ids = [], [], []
         cross = [b for b in range(self.n_bands) if self.band_max[b] > lo and self.band_min[b] <= hi]
         self._prepare_rows(cross)
         below = float(self.n_tet * int(np.count_nonzero(self.band_max <= lo)))
         for b in cross:  # loop over bands only
             rmin, rmax = self.band_rows(b)
             tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
+            ids.append(tets + b * self.n_unique)
             if self.mult is None:
                 below += int(np.count_nonzero(rmax <= lo))
                 parts.append(self._bands[b][self.corner_ir[tets]])
@@ -310,7 +324,9 @@ class _TetrahedronGrid:
                 energy = self._bands[b]
                 parts.append(np.stack([energy.take(col.take(tets)) for col in self._corner_cols], 1))
         e = np.concatenate(parts) if parts else np.empty((0, 4))
-        return _RowWindow(_sort4(e), below, np.concatenate(mult) if mult else None)
+        rows = np.concatenate(ids) if ids else np.empty(0, dtype=np.int64)
+        self._win = _RowWindow(_sort4(e), below, np.concatenate(mult) if mult else None, rows, lo, hi)
+        return self._win
 
     def count(self, eps: float) -> float:
         """States per cell (one spin) below eps."""
@@ -423,6 +439,7 @@ class _TetrahedronGrid:
                 smaller = win.restrict(lo, hi)
                 if smaller is not win:
                     win, w_lo, w_hi = smaller, lo, hi
+                    self._win = win
         win = self._window(lo, hi)
         return _solve_count(lambda x: g * self.volume * win.count_slope(x)[0], n_electrons, lo, hi,
                             "the tetrahedron method")
@@ -439,26 +456,34 @@ class _TetrahedronGrid:
         corner_count = 24.0 * self.k_count
         acc = np.zeros((self.n_ir, nb))
         cross = [b for b in range(nb) if eps - h < self.band_max[b] and self.band_min[b] < eps + h]
-        self._prepare_rows(cross)
         for b in np.flatnonzero(self.band_max <= eps - h):  # rows wholly below eps − h: ¼ per corner, no Blöchl
             acc[:, b] = 0.25 * corner_count
-        tets = []
-        for b in cross:  # loop over bands only; a band is usually wholly full or empty
-            rmin, rmax = self.band_rows(b)
-            full = rmax <= eps - h
-            n_full = int(np.count_nonzero(full))
-            if n_full == U:
-                acc[:, b] = 0.25 * corner_count
-            elif 2 * n_full >= U:
-                acc[:, b] = 0.25 * (corner_count - self._corner_sum(~full))
-            elif n_full:
-                acc[:, b] = 0.25 * self._corner_sum(full)
-            tets.append(np.flatnonzero(~full & (rmin < eps + h)))
-        # the straddling rows of all crossing bands go through the formulas together, in memory-bounded blocks
-        sizes = [len(t) for t in tets]
-        ends = np.cumsum(sizes, dtype=np.int64)
-        tets = np.concatenate(tets) if tets else np.empty(0, dtype=np.int64)
-        bands = np.repeat(np.asarray(cross, dtype=np.int64), sizes)
+        # The straddling rows (highest corner above eps − h, lowest below eps + h): from the Fermi-level window
+        # when it holds every row there, else from each crossing band's row extremes.
+        rows = None if self._win is None else self._win.straddling(eps - h, eps + h)
+        if rows is None:
+            self._prepare_rows(cross)
+            parts = []
+            for b in cross:  # loop over bands only
+                rmin, rmax = self.band_rows(b)
+                parts.append(np.flatnonzero((rmax > eps - h) & (rmin < eps + h)) + b * U)
+            rows = np.concatenate(parts) if parts else np.empty(0, dtype=np.int64)
+        bands, tets = np.divmod(rows, U)
+        # A point below eps + h lies on no row wholly above, so the rows wholly below eps − h about it are all its
+        # rows but the straddling ones; a point at or above eps + h lies on none wholly below. Row counts (with
+        # multiplicity) are whole numbers, so these differences are exact.
+        slot = np.full(nb, -1, dtype=np.int64)
+        slot[cross] = np.arange(len(cross))
+        key = (slot[bands] * self.n_ir)[:, None] + self.corner_ir[tets]
+        mw = None if self.mult is None else np.repeat(self.mult[tets], 4)
+        straddled = np.bincount(key.ravel(), weights=mw, minlength=len(cross) * self.n_ir)
+        straddled = straddled.reshape(len(cross), self.n_ir)
+        for i, b in enumerate(cross):  # loop over bands only
+            acc[:, b] = np.where(self._bands[b] < eps + h, 0.25 * (corner_count - straddled[i]), 0.0)
+        # the straddling rows of all crossing bands go through the formulas together, in memory-bounded blocks;
+        # each band's rows are contiguous
+        ends = np.searchsorted(bands, np.asarray(cross, dtype=np.int64), side="right")
+        firsts = np.searchsorted(bands, np.asarray(cross, dtype=np.int64), side="left")
         for s in range(0, len(tets), _CHUNK_ROWS):
             t, band = tets[s:s + _CHUNK_ROWS], bands[s:s + _CHUNK_ROWS]
             corner = self.corner_ir[t]
@@ -466,22 +491,11 @@ class _TetrahedronGrid:
             w = _tet_weights_at(e, eps, h, blochl)
             if self.mult is not None:
                 w *= self.mult[t][:, None]
-            for b, first, end in zip(cross, ends - sizes, ends):  # bands only: each band's rows are contiguous
+            for b, first, end in zip(cross, firsts, ends):  # bands only
                 sl = slice(max(first, s) - s, min(end, s + len(t)) - s)
                 if sl.stop > sl.start:
                     acc[:, b] += np.bincount(corner[sl].ravel(), weights=w[sl].ravel(), minlength=self.n_ir)
         return self.volume * acc
-
-    def _corner_sum(self, sel: np.ndarray) -> np.ndarray:
-        """(M,) grid tetrahedra among the selected rows ``sel`` (U,) bool having each irreducible point as a corner."""
-        if self.mult is None:
-            return np.bincount(self.corner_ir[sel].ravel(), minlength=self.n_ir)
-        idx = np.flatnonzero(sel)
-        w = self.mult.take(idx)
-        out = np.bincount(self._corner_cols[0].take(idx), weights=w, minlength=self.n_ir)
-        for col in self._corner_cols[1:]:  # four corners, not k-points
-            out += np.bincount(col.take(idx), weights=w, minlength=self.n_ir)
-        return out
 
     # ------------------------------------------------------------------------------------------ DOS
     def dos_on_grid(self, energies: np.ndarray, proj_ir: np.ndarray | None):

@@ -471,6 +471,33 @@ def test_tetrahedron_fast_path_matches_brute_force(use_symmetry):
             assert np.allclose(fast.occupations, occ, rtol=0, atol=1e-10)
 
 
+@pytest.mark.parametrize("use_symmetry", [False, True])
+def test_tetrahedron_occupations_with_and_without_the_fermi_window(use_symmetry):
+    # occupations read the straddling rows from the Fermi-level window when it holds them, else from each band's
+    # row extremes; both must reproduce the plain formulas over all rows (Blöchl, Jepsen & Andersen, PRB 49,
+    # 16223 (1994)), also at energies outside the last window and with tied corners
+    from screener.bz.tetra_grid import _TetrahedronGrid
+
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, (6, 5, 4) if not use_symmetry else (6, 6, 6), use_symmetry=use_symmetry)
+    e1 = m.eigenvalues(kmesh.kfrac)
+    e = np.sort(np.concatenate([e1, 0.5 * e1 + 0.8, np.round(0.3 * e1, 1)], axis=1), axis=1)
+    for n in (0.37, 2.9, 4.6):
+        mu, _, occ = _brute_force_tetrahedron(e, kmesh, n, m.crystal.reciprocal_A)
+        warm = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+        mu_fast = warm.fermi_level(n, 2)
+        via_window = 2 * warm.occupations(mu_fast)
+        fresh = 2 * _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A).occupations(mu_fast)  # no window yet
+        assert np.array_equal(via_window, fresh)
+        assert np.allclose(via_window, occ, rtol=0, atol=1e-10)
+        assert mu_fast == pytest.approx(mu, abs=1e-10)
+        # far from the window: the window cannot serve, the row extremes must
+        other = float(np.quantile(e, 0.9))
+        assert np.array_equal(warm.occupations(other),
+                              _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A).occupations(other))
+        assert 2 * warm.occupations(other).sum() == pytest.approx(2 * warm.count(other), abs=1e-12)
+
+
 def test_sorting_networks_match_numpy_stable_argsort():
     # the four-corner sorting networks must equal numpy's stable argsort (the reference), ties included:
     # every row over {0, 1, 2}^4 and random rows with many ties
