@@ -157,14 +157,21 @@ def _tet_weights_at(e, eps: float, h: float = 0.0, blochl: bool = False) -> np.n
     w = np.zeros((n, 4))
     p = piece(eps)
     w[p == 4] = 0.25
+    d_lo, d_hi = np.zeros(n), np.zeros(n)
+    # usually no corner lies within h of eps, so every row sits on the same piece at eps − h, eps and eps + h:
+    # then the DOS at eps ∓ h is taken from the corners gathered for the weights
+    shared = blochl and np.array_equal(piece(eps - h), p) and np.array_equal(piece(eps + h), p)
     for k in (1, 2, 3):
         idx = np.flatnonzero(p == k)
         if len(idx):
-            w[idx] = _weights_piece(k, *(c.take(idx) for c in cols), eps)
+            a = [c.take(idx) for c in cols]
+            w[idx] = _weights_piece(k, *a, eps)
+            if shared:
+                d_lo[idx] = _dos_piece(k, *a, eps - h)
+                d_hi[idx] = _dos_piece(k, *a, eps + h)
     if not blochl:
         return w
-    d_lo, d_hi = np.zeros(n), np.zeros(n)
-    for x, out in ((eps - h, d_lo), (eps + h, d_hi)):  # _tet_dos at eps ∓ h
+    for x, out in () if shared else ((eps - h, d_lo), (eps + h, d_hi)):  # _tet_dos at eps ∓ h
         p = piece(x)
         for k in (1, 2, 3):
             idx = np.flatnonzero(p == k)
