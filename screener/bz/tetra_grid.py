@@ -28,13 +28,14 @@ class _MeshTables:
     """What a tetrahedron grid needs of its k-mesh alone (not of the energies): grid → irreducible point, the
     distinct tetrahedra with their multiplicities, grid points per irreducible point."""
 
-    __slots__ = ("key", "mapping", "grid_address", "grid_to_ir", "corner_ir", "corner_cols", "mult", "n_tet",
-                 "k_count")
+    __slots__ = ("key", "source", "mapping", "grid_address", "grid_to_ir", "corner_ir", "corner_cols", "mult",
+                 "n_tet", "k_count")
 
 
 #: Tables of the last few meshes: a screen integrates many models on one mesh and symmetry, and the tables cost
-#: more than an integration. A hit needs equal mapping and grid addresses (compared in full, not hashed). The
-#: tables are read-only; the lock guards the list when integrations run in threads.
+#: more than an integration. A hit needs equal mapping and grid addresses (compared in full, not hashed), or the
+#: very mesh object the tables were built from when its arrays are read-only (as `irreducible_mesh` returns them).
+#: The tables are read-only; the lock guards the list when integrations run in threads.
 _TABLE_CACHE: list[_MeshTables] = []
 _TABLE_CACHE_SIZE = 4
 _TABLE_LOCK = threading.Lock()
@@ -44,13 +45,16 @@ def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) ->
     """The tables of ``kmesh`` split along the diagonal from ``flip``: from the cache, or built and cached."""
     mapping, addr = np.asarray(kmesh.mapping), np.asarray(kmesh.grid_address)
     key = (mesh, flip, n_ir, mapping.shape, addr.shape)
+    frozen = not (mapping.flags.writeable or addr.flags.writeable)
     with _TABLE_LOCK:
         for i, t in enumerate(_TABLE_CACHE):
-            if t.key == key and np.array_equal(t.mapping, mapping) and np.array_equal(t.grid_address, addr):
+            if t.key == key and ((frozen and t.source is kmesh) or (np.array_equal(t.mapping, mapping)
+                                                                   and np.array_equal(t.grid_address, addr))):
                 _TABLE_CACHE.append(_TABLE_CACHE.pop(i))
                 return t
     t = _build_mesh_tables(mapping, addr, mesh, flip, n_ir)
     t.key = key
+    t.source = kmesh if frozen else None
     with _TABLE_LOCK:
         _TABLE_CACHE.append(t)
         del _TABLE_CACHE[:-_TABLE_CACHE_SIZE]
@@ -79,7 +83,7 @@ def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip:
     t.mapping, t.grid_address = mapping.copy(), addr.copy()
     t.n_tet = 6 * n_full
     t.k_count = np.bincount(grid_to_ir, minlength=n_ir)
-    t.mult = None
+    t.mult, t.corner_cols = None, None
     if n_ir == n_full and np.array_equal(grid_to_ir, np.arange(n_full)):
         t.grid_to_ir, t.corner_ir = None, _corner_table(mesh, flip)
     else:
@@ -104,13 +108,12 @@ def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip:
             del c, tmp
             code, counts = np.unique(code, return_counts=True)
             if len(code) < 0.7 * t.n_tet:  # else not worth the indirection
-                corner = np.empty((len(code), 4), dtype=np.int64)
-                for j in (3, 2, 1, 0):  # four corners, not k-points
-                    code, corner[:, j] = np.divmod(code, n_ir)
-                t.corner_ir, t.mult = corner, counts.astype(float)
+                cols = [None] * 4
+                for j in (3, 2, 1, 0):  # four corners, not k-points; each column decoded contiguous
+                    code, cols[j] = np.divmod(code, n_ir)
+                t.corner_ir, t.mult, t.corner_cols = np.stack(cols, 1), counts.astype(float), cols
         if t.corner_ir is None:
             t.corner_ir = grid_to_ir[_corner_table(mesh, flip)]
-    t.corner_cols = None if t.mult is None else [np.ascontiguousarray(t.corner_ir[:, j]) for j in range(4)]
     for a in [t.mapping, t.grid_address, t.grid_to_ir, t.corner_ir, t.mult, t.k_count] + (t.corner_cols or []):
         if a is not None:
             a.setflags(write=False)
