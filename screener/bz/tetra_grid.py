@@ -15,11 +15,11 @@ from screener.bz.tetrahedron import (
     _row_extremes,
     _sort4,
     _sort4_stable,
+    _split_flip,
     _tet_corner_dos,
     _tet_count,
     _tet_dos,
     _tet_weights_at,
-    _tetra_offsets,
 )
 from screener.errors import ParameterError
 
@@ -217,7 +217,7 @@ class _TetrahedronGrid:
                 f"got eigenvalues at {eigs_ir.shape[0]} k-points but the mesh has {len(kmesh.ir_index)} irreducible "
                 "points; compute them at kmesh.kfrac"
             )
-        self._flip = tuple(int(x) for x in _tetra_offsets(mesh, reciprocal_A)[0, 0])  # path 0 starts at the flip
+        self._flip = _split_flip(mesh, reciprocal_A)  # the diagonal's start (path 0 starts there)
         self._mesh = tuple(int(m) for m in mesh)
         tables = _mesh_tables(kmesh, self._mesh, self._flip, eigs_ir.shape[0])
         self._grid_to_ir = tables.grid_to_ir

@@ -44,6 +44,18 @@ def _tetra_offsets(mesh, reciprocal_A) -> np.ndarray:
     return np.bitwise_xor(_PATHS, flip[None, None, :])
 
 
+@lru_cache(maxsize=16)
+def _split_flip_cached(mesh: tuple, rec: bytes | None) -> tuple[int, int, int]:
+    r = None if rec is None else np.frombuffer(rec, dtype=float).reshape(3, 3)
+    return tuple(int(x) for x in _tetra_offsets(np.asarray(mesh), r)[0, 0])
+
+
+def _split_flip(mesh, reciprocal_A) -> tuple[int, int, int]:
+    """Start of the main diagonal `_tetra_offsets` splits along (path 0 starts there), kept per (mesh, vectors)."""
+    rec = None if reciprocal_A is None else np.ascontiguousarray(reciprocal_A, dtype=float).reshape(3, 3).tobytes()
+    return _split_flip_cached(tuple(int(m) for m in mesh), rec)
+
+
 def _pieces(e, eps):
     """``eps`` broadcast to the rows of sorted corner energies e (n, 4), and the masks of the three partly
     occupied cases ε1 < ε ≤ ε2, ε2 < ε ≤ ε3, ε3 < ε < ε4 (Blöchl, Jepsen & Andersen 1994, App. B)."""
