@@ -125,6 +125,49 @@ def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip:
     return t
 
 
+def _weighted_level(e: np.ndarray, w: np.ndarray, target: float) -> float:
+    """Smallest value v of ``e`` with Σ w[e ≤ v] ≥ ``target`` (the largest value if none), for whole-number weights
+    ``w`` summing to at least ``target``: what sorting e, accumulating w and searching for ``target`` gives, but by
+    selection. Two pivots around the expected position split the values per pass, so a few partitions of a shrinking
+    set replace the sort; sums of whole numbers are exact, so the comparisons are those the sort would make."""
+    if target <= 0:
+        return float(e.min())
+    base = 0.0  # weight of the values below the current set (less than target)
+    while len(e) > 2048:  # a few passes, each keeping the part of the values that holds the level
+        n = len(e)
+        total = float(w.sum())
+        q = (target - base) / total if total > 0 else 1.0
+        d = max(8, n // 64)
+        k1 = min(max(int(q * n) - d, 0), n - 1)
+        k2 = min(max(int(q * n) + d, 0), n - 1)
+        part = np.partition(e, [k1, k2])
+        p1, p2 = float(part[k1]), float(part[k2])
+        below1 = e < p1
+        w_lt1 = float(w[below1].sum())
+        if base + w_lt1 >= target:
+            e, w = e[below1], w[below1]
+            continue
+        at_or_below1 = e <= p1
+        w_le1 = float(w[at_or_below1].sum())
+        if base + w_le1 >= target:
+            return p1
+        at_or_below2 = e <= p2
+        w_le2 = float(w[at_or_below2].sum())
+        if base + w_le2 >= target:
+            keep = ~at_or_below1 & at_or_below2
+            base += w_le1
+        else:
+            keep = ~at_or_below2
+            base += w_le2
+        if not keep.any():  # rounding of the target beyond the total: the largest value, as the search gives
+            return float(e.max())
+        e, w = e[keep], w[keep]
+    order = np.argsort(e)
+    cum = base + np.cumsum(w[order])
+    i = int(np.searchsorted(cum, target))
+    return float(e[order[min(i, len(e) - 1)]])
+
+
 class _RowWindow:
     """Sorted corner energies of the rows overlapping a bracket (lo, hi], set up for repeated count and DOS.
 
@@ -365,10 +408,7 @@ class _TetrahedronGrid:
             level = float(np.partition(e, i)[i])
         else:
             w = np.tile(kc.astype(float), len(cand))
-            order = np.argsort(e)
-            cum = np.cumsum(w[order])
-            i = int(np.searchsorted(cum, frac * cum[-1]))
-            level = float(e[order[min(i, len(e) - 1)]])
+            level = _weighted_level(e, w, frac * float(w.sum()))
         # energy change along the (flipped) main diagonal of a grid cube at the sampled points, candidate bands
         m = np.asarray(self._mesh)
         n_grid = len(self.k_count) if self._grid_to_ir is None else len(self._grid_to_ir)

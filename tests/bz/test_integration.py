@@ -516,6 +516,23 @@ def test_sorting_networks_match_numpy_stable_argsort():
     assert np.array_equal(np.stack(_sort4(rows), 1), np.sort(rows, axis=1))
 
 
+def test_weighted_level_selection_matches_numpy_sort_and_search():
+    # the Fermi-level start's weighted selection must equal numpy's argsort + cumsum + searchsorted (the
+    # reference) for whole-number weights, ties and the end points included
+    from screener.bz.tetra_grid import _weighted_level
+
+    rng = np.random.default_rng(SEED + 4)
+    for size in (1, 7, 2048, 2049, 5000, 40000):
+        for e in (rng.normal(size=size), np.round(rng.normal(size=size), 1), np.full(size, 0.5)):
+            w = rng.integers(1, 49, size=size).astype(float)
+            order = np.argsort(e)
+            cum = np.cumsum(w[order])
+            for frac in (0.0, 1e-12, float(rng.random()), 0.5, 1 - 1e-12, 1.0):
+                target = frac * float(w.sum())
+                ref = e[order[min(int(np.searchsorted(cum, target)), size - 1)]]
+                assert _weighted_level(e, w, target) == ref
+
+
 def test_tetrahedron_row_extremes_and_count_match_corner_energies():
     # band-major rows b·T + t: lowest/highest corner energy and the count against Blöchl's formula applied to
     # every row (Blöchl, Jepsen & Andersen, PRB 49, 16223 (1994), App. B)
