@@ -441,11 +441,14 @@ class _TetrahedronGrid:
         lo, hi, f_lo, f_hi = floor, ceil, -target, float(self.n_rows) - target
         # Safeguarded Newton on the exact count, whose slope is the tetrahedron DOS from the same rows, started
         # from the grid-point estimate; a step leaving the bracket, or a zero slope, falls back to bisection.
-        # Only rows overlapping a window around the iterate are held (the typical energy spread of one
-        # tetrahedron sets its starting width); the window is rebuilt, wider, when a step leaves it, and shrinks
-        # with the bracket down to about the rows straddling the level itself.
+        # Only rows overlapping a window around the iterate are held (a quarter of the typical energy spread of
+        # one tetrahedron sets its starting half-width: the sampled start is usually well within that, measured on
+        # the meshes of the demo screens); the window is rebuilt, wider, when a step leaves it, and shrinks with the
+        # bracket down to about the rows straddling the level itself. The count at an energy inside the window does
+        # not depend on its extent (the same straddling rows in the same order, whole-number sums for the rest), so
+        # the width changes the work only.
         mu, spread = self._sampled_level(n_electrons / g)
-        half = max(0.5 * spread, 1e-6 * (ceil - floor))
+        half = max(0.25 * spread, 1e-6 * (ceil - floor))
         w_lo, w_hi = max(mu - half, lo), min(mu + half, hi)
         win = self._window(w_lo, w_hi)
         last_step = None
