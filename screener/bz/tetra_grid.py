@@ -29,7 +29,25 @@ class _MeshTables:
     distinct tetrahedra with their multiplicities, grid points per irreducible point."""
 
     __slots__ = ("key", "source", "mapping", "grid_address", "grid_to_ir", "corner_ir", "corner_cols", "mult",
-                 "n_tet", "k_count")
+                 "n_tet", "k_count", "point_rows", "lock")
+
+    def rows_at_points(self):
+        """(rows, starts): the distinct tetrahedra having irreducible point k as a corner are
+        ``rows[starts[k]:starts[k + 1]]`` (a tetrahedron with a repeated corner appears once per corner). Built on
+        first use and kept (read-only)."""
+        with self.lock:
+            if self.point_rows is None:
+                flat = self.corner_ir.reshape(-1)
+                # the stable sort of 16-bit keys is a radix sort (several times faster; the same order)
+                key = flat.astype(np.uint16) if len(self.k_count) <= 1 << 16 else flat
+                order = np.argsort(key, kind="stable")
+                rows = order // 4
+                starts = np.zeros(len(self.k_count) + 1, dtype=np.int64)
+                np.cumsum(np.bincount(flat, minlength=len(self.k_count)), out=starts[1:])
+                rows.setflags(write=False)
+                starts.setflags(write=False)
+                self.point_rows = (rows, starts)
+            return self.point_rows
 
 
 #: Tables of the last few meshes: a screen integrates many models on one mesh and symmetry, and the tables cost
@@ -80,6 +98,7 @@ def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip:
     grid_to_ir = np.empty(n_full, dtype=np.int64)  # grid point (row-major index) -> irreducible point
     grid_to_ir[flat] = mapping.astype(np.int64)
     t = _MeshTables()
+    t.point_rows, t.lock = None, threading.Lock()
     t.mapping, t.grid_address = mapping.copy(), addr.copy()
     t.n_tet = 6 * n_full
     t.k_count = np.bincount(grid_to_ir, minlength=n_ir)
@@ -268,6 +287,7 @@ class _TetrahedronGrid:
         self._flip = _split_flip(mesh, reciprocal_A)  # the diagonal's start (path 0 starts there)
         self._mesh = tuple(int(m) for m in mesh)
         tables = _mesh_tables(kmesh, self._mesh, self._flip, eigs_ir.shape[0])
+        self._tables = tables
         self._grid_to_ir = tables.grid_to_ir
         self.corner_ir = tables.corner_ir  # (U, 4) irreducible index of each corner of each distinct tetrahedron
         self.mult = tables.mult  # (U,) grid tetrahedra each distinct one stands for; None: one each, grid order
@@ -358,26 +378,75 @@ class _TetrahedronGrid:
 
         A row starting exactly at hi counts nothing there unless all its corners sit at hi, so it is kept.
         """
-        parts, mult, ids = [], [], []
         cross = [b for b in range(self.n_bands) if self.band_max[b] > lo and self.band_min[b] <= hi]
-        self._prepare_rows(cross)
         below = float(self.n_tet * int(np.count_nonzero(self.band_max <= lo)))
-        for b in cross:  # loop over bands only
+        found = {}  # band -> (rows, (n, 4) corner energies, multiplicities)
+        for b in cross:  # loop over bands only: bands entering the window at an edge, from their few points
+            edge = None if self.mult is None or self._rows_of_band[b] is not None else self._edge_rows(b, lo, hi)
+            if edge is not None:
+                tets, cols, below_b = edge
+                below += below_b
+                found[b] = (tets, np.stack(cols, 1), self.mult.take(tets))
+        rest = [b for b in cross if b not in found]
+        self._prepare_rows(rest)
+        for b in rest:  # loop over bands only
             rmin, rmax = self.band_rows(b)
             tets = np.flatnonzero((rmax > lo) & (rmin <= hi))
-            ids.append(tets + b * self.n_unique)
             if self.mult is None:
                 below += int(np.count_nonzero(rmax <= lo))
-                parts.append(self._bands[b][self.corner_ir[tets]])
+                found[b] = (tets, self._bands[b][self.corner_ir[tets]], None)
             else:
                 below += float(np.sum(self.mult, where=rmax <= lo))
-                mult.append(self.mult.take(tets))
                 energy = self._bands[b]
-                parts.append(np.stack([energy.take(col.take(tets)) for col in self._corner_cols], 1))
+                found[b] = (tets, np.stack([energy.take(col.take(tets)) for col in self._corner_cols], 1),
+                            self.mult.take(tets))
+        # band-then-row order, as the occupations expect
+        ids = [found[b][0] + b * self.n_unique for b in cross]
+        parts = [found[b][1] for b in cross]
+        mult = [found[b][2] for b in cross] if self.mult is not None else []
         e = np.concatenate(parts) if parts else np.empty((0, 4))
         rows = np.concatenate(ids) if ids else np.empty(0, dtype=np.int64)
         self._win = _RowWindow(_sort4(e), below, np.concatenate(mult) if mult else None, rows, lo, hi)
         return self._win
+
+    def _edge_rows(self, b: int, lo: float, hi: float):
+        """Rows of band ``b`` overlapping (lo, hi] found from its few points on one side, or None.
+
+        A row has a corner above lo exactly when it is a row of a point above lo, and a corner at or below hi
+        exactly when it is a row of a point at or below hi. When only a few of the band's points lie above lo (the
+        band's top enters the window) or at or below hi (its bottom does), the rows of those points are the only
+        candidates, and the band's other rows need not be gathered. Returns (rows ascending, their four corner
+        energy columns, grid rows of the band wholly at or below lo) — what the full pass would give — or None
+        when neither side is small.
+        """
+        energy = self._bands[b]
+        n_ir = len(energy)
+        top = energy > lo
+        n_top = int(np.count_nonzero(top))
+        if 8 * n_top <= n_ir:
+            points = np.flatnonzero(top)
+        else:
+            bottom = energy <= hi
+            if 8 * int(np.count_nonzero(bottom)) > n_ir:
+                return None
+            points = np.flatnonzero(bottom)
+        rows_of, starts = self._tables.rows_at_points()
+        first, length = starts[points], starts[points + 1] - starts[points]
+        total = int(length.sum())
+        pos = np.repeat(first - (np.cumsum(length) - length), length) + np.arange(total)
+        mark = np.zeros(self.n_unique, dtype=bool)
+        mark[rows_of[pos]] = True
+        cand = np.flatnonzero(mark)
+        cols = [energy.take(col.take(cand)) for col in self._corner_cols]
+        rmin = np.minimum(np.minimum(cols[0], cols[1]), np.minimum(cols[2], cols[3]))
+        rmax = np.maximum(np.maximum(cols[0], cols[1]), np.maximum(cols[2], cols[3]))
+        if 8 * n_top <= n_ir:  # candidates: every row with a corner above lo
+            keep = rmin <= hi
+            below_b = float(self.n_tet) - float(self.mult.take(cand).sum())
+        else:  # candidates: every row with a corner at or below hi, among them all rows wholly at or below lo
+            keep = rmax > lo
+            below_b = float(np.sum(self.mult.take(cand), where=~keep))
+        return cand[keep], [c[keep] for c in cols], below_b
 
     def count(self, eps: float) -> float:
         """States per cell (one spin) below eps."""

@@ -498,6 +498,43 @@ def test_tetrahedron_occupations_with_and_without_the_fermi_window(use_symmetry)
         assert 2 * warm.occupations(other).sum() == pytest.approx(2 * warm.count(other), abs=1e-12)
 
 
+def test_tetrahedron_window_from_band_edges_equals_the_full_pass():
+    # a band entering the Fermi-level window at its top or bottom is searched from its few points there; the rows,
+    # corner energies and count below must be those of the pass over all its rows (so must the count inside), and
+    # the count at the level from Blöchl's formula over every row must hold the electrons (Blöchl, Jepsen &
+    # Andersen, PRB 49, 16223 (1994), App. B)
+    from screener.bz.tetra_grid import _TetrahedronGrid
+
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, (8, 8, 8))
+    e1 = m.eigenvalues(kmesh.kfrac)
+    e = np.sort(np.concatenate([e1, 0.5 * e1 + 0.8, np.round(0.3 * e1, 1) + 2.0], axis=1), axis=1)
+    mu, _, _ = _brute_force_tetrahedron(e, kmesh, 1.0, m.crystal.reciprocal_A)
+    probe = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+    assert probe.mult is not None  # the distinct-tetrahedra path the edge search serves
+    width = float(e.max() - e.min())
+    edges = [float(probe.band_max[b]) for b in range(3)] + [float(probe.band_min[b]) for b in range(3)]
+    used = 0
+    for edge in edges:
+        for lo, hi in ((edge - 0.02 * width, edge + 0.01 * width), (edge - 1e-3, edge), (edge, edge + 1e-3)):
+            fresh = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+            called = []
+            original = fresh._edge_rows
+            fresh._edge_rows = lambda b, a, z: called.append(b) or original(b, a, z)
+            win = fresh._window(lo, hi)
+            used += sum(fresh._rows_of_band[b] is None for b in called)
+            full = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+            full._prepare_rows(range(full.n_bands))  # every band's rows known: the full pass
+            ref = full._window(lo, hi)
+            assert win.below == ref.below
+            assert all(np.array_equal(x, y) for x, y in zip(win.arrays, ref.arrays))
+            for eps in (lo, 0.5 * (lo + hi), hi):
+                if lo < eps <= hi:
+                    assert win.count_slope(eps)[0] == ref.count_slope(eps)[0]
+    assert used > 0  # some band was found from its edge points
+    assert probe.count(mu) * 2 == pytest.approx(1.0, abs=1e-10)
+
+
 def test_sorting_networks_match_numpy_stable_argsort():
     # the four-corner sorting networks must equal numpy's stable argsort (the reference), ties included:
     # every row over {0, 1, 2}^4 and random rows with many ties
