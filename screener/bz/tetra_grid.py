@@ -42,6 +42,8 @@ class _MeshTables:
                 key = flat.astype(np.uint16) if len(self.k_count) <= 1 << 16 else flat
                 order = np.argsort(key, kind="stable")
                 rows = order // 4
+                if len(self.corner_ir) < 1 << 31:  # half the memory (it is kept with the mesh's tables)
+                    rows = rows.astype(np.int32)
                 starts = np.zeros(len(self.k_count) + 1, dtype=np.int64)
                 np.cumsum(np.bincount(flat, minlength=len(self.k_count)), out=starts[1:])
                 rows.setflags(write=False)
