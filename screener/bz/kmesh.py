@@ -5,6 +5,7 @@ k-points are fractions of the reciprocal vectors of the cell they belong to (row
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -120,19 +121,55 @@ class IrreducibleMesh:
     """(M,) float, weights summing to 1."""
 
 
+#: Irreducible meshes of the last few (mesh, shift, symmetry) keys: a screen reduces one mesh by one point group for
+#: many models, and the reduction (spglib, the grouping of the map) costs more than a small integration. The key
+#: holds the exact bytes of what the reduction depends on (the rotations, or the cell and tolerance searched), so a
+#: hit returns the mesh the same call would build. The arrays of a cached mesh are read-only; the lock guards the
+#: list when meshes are built in threads.
+_MESH_CACHE: list = []
+_MESH_CACHE_SIZE = 8
+_MESH_LOCK = threading.Lock()
+
+
 def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = SYMPREC_A,
                      use_symmetry: bool = True, rotations=None) -> IrreducibleMesh:
     """Irreducible wedge of a Monkhorst–Pack mesh with weights (spglib ``get_ir_reciprocal_mesh``).
 
     ``rotations`` ((n, 3, 3) int, fractional, of ``crystal``) reuses a symmetry analysis already made: the mesh is
     then reduced by those rotations (spglib ``get_stabilized_reciprocal_mesh``) without a new symmetry search.
+    The result's arrays are read-only: an equal request returns the same object from a small cache.
     """
     mesh = tuple(int(m) for m in mesh)
     shift = tuple(int(s) for s in shift)
     if len(mesh) != 3 or min(mesh) < 1:
         raise SymmetryError(f"k-mesh must be three positive integers, got {mesh}")
+    rots = None
     if use_symmetry and rotations is not None:
         rots = np.unique(np.asarray(rotations, dtype="intc").reshape(-1, 3, 3), axis=0)
+        key = ("rotations", mesh, shift, rots.shape, rots.tobytes())
+    elif use_symmetry:
+        lat, frac, numbers = _cell(crystal)
+        lat, frac, numbers = (np.ascontiguousarray(x, dtype=t) for x, t in ((lat, float), (frac, float),
+                                                                             (numbers, np.int64)))
+        key = ("cell", mesh, shift, float(symprec), lat.tobytes(), frac.shape, frac.tobytes(), numbers.tobytes())
+    else:
+        key = ("full", mesh, shift)
+    with _MESH_LOCK:
+        for i, (k, km) in enumerate(_MESH_CACHE):
+            if k == key:
+                _MESH_CACHE.append(_MESH_CACHE.pop(i))
+                return km
+    km = _reduce_mesh(crystal, mesh, shift, symprec, use_symmetry, rots)
+    with _MESH_LOCK:
+        _MESH_CACHE.append((key, km))
+        del _MESH_CACHE[:-_MESH_CACHE_SIZE]
+    return km
+
+
+def _reduce_mesh(crystal: Crystal, mesh: tuple, shift: tuple, symprec: float, use_symmetry: bool,
+                 rots) -> IrreducibleMesh:
+    """`irreducible_mesh` without the cache; ``rots`` the distinct rotations given, or None."""
+    if use_symmetry and rots is not None:
         full_map, grid = spglib.get_stabilized_reciprocal_mesh(mesh, rots, is_shift=shift, is_time_reversal=True)
     elif use_symmetry:
         res = spglib.get_ir_reciprocal_mesh(mesh, _cell(crystal), is_shift=shift, is_time_reversal=True,
@@ -146,11 +183,21 @@ def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = S
         grid = np.stack(np.meshgrid(*(np.arange(m) for m in mesh), indexing="ij"), -1).reshape(-1, 3)
         grid = np.where(grid > np.array(mesh) // 2, grid - np.array(mesh), grid)
         full_map = np.arange(len(grid))
-    full_map = np.asarray(full_map)
+    full_map = np.asarray(full_map).reshape(-1)
     grid = np.asarray(grid)
     kfull = (grid + 0.5 * np.asarray(shift)) / np.asarray(mesh, dtype=float)
-    ir_index, inverse, counts = np.unique(full_map, return_inverse=True, return_counts=True)
-    return IrreducibleMesh(
+    # the map names a mesh point (index < N) for every point: group by counting, as np.unique would by sorting
+    # (same ascending representatives, inverse and counts)
+    if full_map.size and 0 <= full_map.min() and full_map.max() < len(full_map):
+        counts_all = np.bincount(full_map, minlength=len(full_map))
+        ir_index = np.flatnonzero(counts_all).astype(full_map.dtype, copy=False)
+        counts = counts_all[ir_index]
+        slot = np.zeros(len(full_map), dtype=np.intp)
+        slot[ir_index] = np.arange(len(ir_index))
+        inverse = slot[full_map]
+    else:
+        ir_index, inverse, counts = np.unique(full_map, return_inverse=True, return_counts=True)
+    out = IrreducibleMesh(
         mesh=mesh,
         shift=shift,
         kfrac_full=kfull,
@@ -160,3 +207,6 @@ def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = S
         kfrac=kfull[ir_index],
         weights=counts / counts.sum(),
     )
+    for a in (out.kfrac_full, out.grid_address, out.mapping, out.ir_index, out.kfrac, out.weights):
+        a.setflags(write=False)
+    return out

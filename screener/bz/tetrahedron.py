@@ -44,6 +44,18 @@ def _tetra_offsets(mesh, reciprocal_A) -> np.ndarray:
     return np.bitwise_xor(_PATHS, flip[None, None, :])
 
 
+@lru_cache(maxsize=16)
+def _split_flip_cached(mesh: tuple, rec: bytes | None) -> tuple[int, int, int]:
+    r = None if rec is None else np.frombuffer(rec, dtype=float).reshape(3, 3)
+    return tuple(int(x) for x in _tetra_offsets(np.asarray(mesh), r)[0, 0])
+
+
+def _split_flip(mesh, reciprocal_A) -> tuple[int, int, int]:
+    """Start of the main diagonal `_tetra_offsets` splits along (path 0 starts there), kept per (mesh, vectors)."""
+    rec = None if reciprocal_A is None else np.ascontiguousarray(reciprocal_A, dtype=float).reshape(3, 3).tobytes()
+    return _split_flip_cached(tuple(int(m) for m in mesh), rec)
+
+
 def _pieces(e, eps):
     """``eps`` broadcast to the rows of sorted corner energies e (n, 4), and the masks of the three partly
     occupied cases ε1 < ε ≤ ε2, ε2 < ε ≤ ε3, ε3 < ε < ε4 (Blöchl, Jepsen & Andersen 1994, App. B)."""
@@ -157,14 +169,21 @@ def _tet_weights_at(e, eps: float, h: float = 0.0, blochl: bool = False) -> np.n
     w = np.zeros((n, 4))
     p = piece(eps)
     w[p == 4] = 0.25
+    d_lo, d_hi = np.zeros(n), np.zeros(n)
+    # usually no corner lies within h of eps, so every row sits on the same piece at eps − h, eps and eps + h:
+    # then the DOS at eps ∓ h is taken from the corners gathered for the weights
+    shared = blochl and np.array_equal(piece(eps - h), p) and np.array_equal(piece(eps + h), p)
     for k in (1, 2, 3):
         idx = np.flatnonzero(p == k)
         if len(idx):
-            w[idx] = _weights_piece(k, *(c.take(idx) for c in cols), eps)
+            a = [c.take(idx) for c in cols]
+            w[idx] = _weights_piece(k, *a, eps)
+            if shared:
+                d_lo[idx] = _dos_piece(k, *a, eps - h)
+                d_hi[idx] = _dos_piece(k, *a, eps + h)
     if not blochl:
         return w
-    d_lo, d_hi = np.zeros(n), np.zeros(n)
-    for x, out in ((eps - h, d_lo), (eps + h, d_hi)):  # _tet_dos at eps ∓ h
+    for x, out in () if shared else ((eps - h, d_lo), (eps + h, d_hi)):  # _tet_dos at eps ∓ h
         p = piece(x)
         for k in (1, 2, 3):
             idx = np.flatnonzero(p == k)

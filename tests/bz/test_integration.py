@@ -471,6 +471,70 @@ def test_tetrahedron_fast_path_matches_brute_force(use_symmetry):
             assert np.allclose(fast.occupations, occ, rtol=0, atol=1e-10)
 
 
+@pytest.mark.parametrize("use_symmetry", [False, True])
+def test_tetrahedron_occupations_with_and_without_the_fermi_window(use_symmetry):
+    # occupations read the straddling rows from the Fermi-level window when it holds them, else from each band's
+    # row extremes; both must reproduce the plain formulas over all rows (Blöchl, Jepsen & Andersen, PRB 49,
+    # 16223 (1994)), also at energies outside the last window and with tied corners
+    from screener.bz.tetra_grid import _TetrahedronGrid
+
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, (6, 5, 4) if not use_symmetry else (6, 6, 6), use_symmetry=use_symmetry)
+    e1 = m.eigenvalues(kmesh.kfrac)
+    e = np.sort(np.concatenate([e1, 0.5 * e1 + 0.8, np.round(0.3 * e1, 1)], axis=1), axis=1)
+    for n in (0.37, 2.9, 4.6):
+        mu, _, occ = _brute_force_tetrahedron(e, kmesh, n, m.crystal.reciprocal_A)
+        warm = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+        mu_fast = warm.fermi_level(n, 2)
+        via_window = 2 * warm.occupations(mu_fast)
+        fresh = 2 * _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A).occupations(mu_fast)  # no window yet
+        assert np.array_equal(via_window, fresh)
+        assert np.allclose(via_window, occ, rtol=0, atol=1e-10)
+        assert mu_fast == pytest.approx(mu, abs=1e-10)
+        # far from the window: the window cannot serve, the row extremes must
+        other = float(np.quantile(e, 0.9))
+        assert np.array_equal(warm.occupations(other),
+                              _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A).occupations(other))
+        assert 2 * warm.occupations(other).sum() == pytest.approx(2 * warm.count(other), abs=1e-12)
+
+
+def test_tetrahedron_window_from_band_edges_equals_the_full_pass():
+    # a band entering the Fermi-level window at its top or bottom is searched from its few points there; the rows,
+    # corner energies and count below must be those of the pass over all its rows (so must the count inside), and
+    # the count at the level from Blöchl's formula over every row must hold the electrons (Blöchl, Jepsen &
+    # Andersen, PRB 49, 16223 (1994), App. B)
+    from screener.bz.tetra_grid import _TetrahedronGrid
+
+    m = simple_cubic()
+    kmesh = irreducible_mesh(m.crystal, (8, 8, 8))
+    e1 = m.eigenvalues(kmesh.kfrac)
+    e = np.sort(np.concatenate([e1, 0.5 * e1 + 0.8, np.round(0.3 * e1, 1) + 2.0], axis=1), axis=1)
+    mu, _, _ = _brute_force_tetrahedron(e, kmesh, 1.0, m.crystal.reciprocal_A)
+    probe = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+    assert probe.mult is not None  # the distinct-tetrahedra path the edge search serves
+    width = float(e.max() - e.min())
+    edges = [float(probe.band_max[b]) for b in range(3)] + [float(probe.band_min[b]) for b in range(3)]
+    used = 0
+    for edge in edges:
+        for lo, hi in ((edge - 0.02 * width, edge + 0.01 * width), (edge - 1e-3, edge), (edge, edge + 1e-3)):
+            fresh = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+            called = []
+            original = fresh._edge_rows
+            fresh._edge_rows = lambda b, a, z: called.append(b) or original(b, a, z)
+            win = fresh._window(lo, hi)
+            used += sum(fresh._rows_of_band[b] is None for b in called)
+            full = _TetrahedronGrid(e, kmesh, m.crystal.reciprocal_A)
+            full._prepare_rows(range(full.n_bands))  # every band's rows known: the full pass
+            ref = full._window(lo, hi)
+            assert win.below == ref.below
+            assert all(np.array_equal(x, y) for x, y in zip(win.arrays, ref.arrays))
+            for eps in (lo, 0.5 * (lo + hi), hi):
+                if lo < eps <= hi:
+                    assert win.count_slope(eps)[0] == ref.count_slope(eps)[0]
+    assert used > 0  # some band was found from its edge points
+    assert probe.count(mu) * 2 == pytest.approx(1.0, abs=1e-10)
+
+
 def test_sorting_networks_match_numpy_stable_argsort():
     # the four-corner sorting networks must equal numpy's stable argsort (the reference), ties included:
     # every row over {0, 1, 2}^4 and random rows with many ties
@@ -487,6 +551,23 @@ def test_sorting_networks_match_numpy_stable_argsort():
     assert np.array_equal(e, np.take_along_axis(rows, order, axis=1))
     assert np.array_equal(c, np.take_along_axis(corner, order, axis=1))
     assert np.array_equal(np.stack(_sort4(rows), 1), np.sort(rows, axis=1))
+
+
+def test_weighted_level_selection_matches_numpy_sort_and_search():
+    # the Fermi-level start's weighted selection must equal numpy's argsort + cumsum + searchsorted (the
+    # reference) for whole-number weights, ties and the end points included
+    from screener.bz.tetra_grid import _weighted_level
+
+    rng = np.random.default_rng(SEED + 4)
+    for size in (1, 7, 2048, 2049, 5000, 40000):
+        for e in (rng.normal(size=size), np.round(rng.normal(size=size), 1), np.full(size, 0.5)):
+            w = rng.integers(1, 49, size=size).astype(float)
+            order = np.argsort(e)
+            cum = np.cumsum(w[order])
+            for frac in (0.0, 1e-12, float(rng.random()), 0.5, 1 - 1e-12, 1.0):
+                target = frac * float(w.sum())
+                ref = e[order[min(int(np.searchsorted(cum, target)), size - 1)]]
+                assert _weighted_level(e, w, target) == ref
 
 
 def test_tetrahedron_row_extremes_and_count_match_corner_energies():
