@@ -196,30 +196,43 @@ def commensurate_supercell(q_frac, lattice_A) -> np.ndarray:
         keep = lengths <= reach
         cands, lengths = cands[keep], lengths[keep]
         # shortest first, then the smallest integer coefficients, then lexicographic (a fixed order)
-        cands = cands[np.lexsort((cands[:, 2], cands[:, 1], cands[:, 0], np.abs(cands).sum(1), lengths))]
-        best, best_lengths, best_spread = None, None, np.inf
+        order = np.lexsort((cands[:, 2], cands[:, 1], cands[:, 0], np.abs(cands).sum(1), lengths))
+        cands, lengths = cands[order], lengths[order]
+        first = None
         for a, c in itertools.combinations(range(min(len(cands), 40)), 2):
-            v1, v2 = cands[a], cands[c]
-            normal = np.cross(v1, v2)
+            normal = np.cross(cands[a], cands[c])
             if not normal.any():
                 continue
-            if best_lengths is not None and lengths[a] + lengths[c] > best_lengths[1:].sum() * (1 + 1e-9):
-                continue  # v1, v2 together longer than any two rows of the shortest basis
             dets = cands @ normal  # det [v1; v2; v3] for every candidate v3, exact in integers
-            for h in np.flatnonzero(np.abs(dets) == index):
-                rows = np.array([v1, v2, cands[h] if dets[h] > 0 else -cands[h]])
-                rl = np.sort(np.linalg.norm(rows @ lattice, axis=1))
-                if best_lengths is None:
-                    best_lengths = rl
-                elif not np.allclose(rl, best_lengths, rtol=1e-9, atol=0):
-                    continue  # only bases as short as the first (shortest) one found compete
-                # among equally short bases, the one whose reciprocal vectors are closest to equal length: its
-                # k-mesh is closest to uniform, so more of the crystal's rotations map it onto itself and the
-                # irreducible wedge stays small (a skewed basis of the same lattice breaks the mesh's symmetry)
-                recip = np.linalg.norm(np.linalg.inv(rows @ lattice), axis=0)
-                spread = float(recip.max() / recip.min())
-                if spread < best_spread * (1 - 1e-9):
-                    best, best_spread = rows, spread
+            hit = np.flatnonzero(np.abs(dets) == index)
+            if len(hit):
+                first = np.sort(np.linalg.norm(np.array([cands[a], cands[c], cands[hit[0]]]) @ lattice, axis=1))
+                break
+        best, best_spread = None, np.inf
+        if first is not None:
+            # the bases as short as that first (shortest) one: every row among the candidates no longer than its
+            # longest row (a prefix of the length-sorted list), in the same order as above
+            short = int(np.count_nonzero(lengths <= first[2] * (1 + 1e-9)))
+            tol = 1e-9 * first[2]
+            for a, c in itertools.combinations(range(min(short, 40)), 2):
+                if lengths[a] + lengths[c] > first[1] + first[2] + tol:
+                    continue  # v1, v2 together longer than any two rows of the shortest basis
+                v1, v2 = cands[a], cands[c]
+                normal = np.cross(v1, v2)
+                if not normal.any():
+                    continue
+                dets = cands[:short] @ normal
+                for h in np.flatnonzero(np.abs(dets) == index):
+                    if np.any(np.abs(np.sort([lengths[a], lengths[c], lengths[h]]) - first) > tol):
+                        continue
+                    rows = np.array([v1, v2, cands[h] if dets[h] > 0 else -cands[h]])
+                    # among equally short bases, the one whose reciprocal vectors are closest to equal length: its
+                    # k-mesh is closest to uniform, so more of the crystal's rotations map it onto itself and the
+                    # irreducible wedge stays small (a skewed basis of the same lattice breaks the mesh's symmetry)
+                    recip = np.linalg.norm(np.linalg.inv(rows @ lattice), axis=0)
+                    spread = float(recip.max() / recip.min())
+                    if spread < best_spread * (1 - 1e-9):
+                        best, best_spread = rows, spread
         if best is not None:
             return best
     if round(float(np.linalg.det(red))) < 0:
