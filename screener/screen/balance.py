@@ -123,6 +123,15 @@ class _Evaluator:
         self.n_atoms = ref.n_atoms
         self._build = build_model
         self._member_rotations = None
+        self._members_at: dict[tuple[float, float], tuple[Crystal, np.ndarray]] = {}
+
+    def _at(self, amplitude_A: float, strain: float) -> tuple[Crystal, np.ndarray]:
+        """family.at_with_shift(λ, ε), built once per (λ, ε): the band energy on every mesh and the closure
+        members' elastic energies all ask for the same few members."""
+        key = (float(amplitude_A), float(strain))
+        if key not in self._members_at:
+            self._members_at[key] = self.family.at_with_shift(amplitude_A, strain)
+        return self._members_at[key]
 
     def _elastic_per_atom(self, el: ElasticModel, crystal: Crystal, shift: np.ndarray) -> float:
         """Elastic energy per atom of ``crystal`` (a family member whose atoms were wrapped by ``shift``)."""
@@ -130,14 +139,14 @@ class _Evaluator:
 
     def member_elastic(self, amplitude_A: float, strain: float = 0.0) -> np.ndarray:
         """Elastic energy per atom of every closure member at amplitude λ and strain ε (no diagonalisation)."""
-        crystal, shift = self.family.at_with_shift(amplitude_A, strain)
+        crystal, shift = self._at(amplitude_A, strain)
         return np.array([self._elastic_per_atom(el, crystal, shift) for el in self.members])
 
     def energies_at(self, amplitude_A: float, strain: float, mesh) -> tuple[float, float, object]:
         """(E_band per atom, E_elastic per atom, BandEnergyResult) at amplitude λ and cell strain ε."""
         from screener.bz.integrate import solve_on_mesh
 
-        crystal, shift = self.family.at_with_shift(amplitude_A, strain)
+        crystal, shift = self._at(amplitude_A, strain)
         b = self.bonds
         bonds = type(b)(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
         model = self._build(crystal, self.params, bonds=bonds)
