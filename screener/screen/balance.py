@@ -124,6 +124,7 @@ class _Evaluator:
         self._build = build_model
         self._member_rotations = None
         self._members_at: dict[tuple[float, float], tuple[Crystal, np.ndarray]] = {}
+        self._models: dict[tuple[float, float], object] = {}
 
     def _at(self, amplitude_A: float, strain: float) -> tuple[Crystal, np.ndarray]:
         """family.at_with_shift(λ, ε), built once per (λ, ε): the band energy on every mesh and the closure
@@ -147,9 +148,12 @@ class _Evaluator:
         from screener.bz.integrate import solve_on_mesh
 
         crystal, shift = self._at(amplitude_A, strain)
-        b = self.bonds
-        bonds = type(b)(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
-        model = self._build(crystal, self.params, bonds=bonds)
+        key = (float(amplitude_A), float(strain))
+        model = self._models.get(key)
+        if model is None:  # one model per member, whatever the mesh it is solved on
+            b = self.bonds
+            bonds = type(b)(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
+            model = self._models[key] = self._build(crystal, self.params, bonds=bonds)
         # k-points may only be folded by symmetries the distorted structure really has: a tolerance above the
         # displacement would lend it the parent's symmetry
         symprec = self.settings.symprec_A if amplitude_A == 0 else min(self.settings.symprec_A, 0.1 * amplitude_A)
