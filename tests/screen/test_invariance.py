@@ -2,7 +2,11 @@
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
+from screener.screen.generators import default_candidates
+from screener.screen.parent import build_parent
 from screener.screen.rank import rank
 from screener.screen.settings import ScreenSettings
 from screener.structure.crystal import Crystal
@@ -83,3 +87,23 @@ def test_verdict_and_delta_E_do_not_depend_on_how_the_crystal_is_written(family)
             f"{family}, {name}: {verdict} {sg} {gen} vs {ref}"
         assert others == ref[4], f"{family}, {name}: candidates {others} vs {ref[4]}"
         assert dE == pytest.approx(ref[1], abs=1.0), f"{family}, {name}: ΔE {dE} vs {ref[1]}"
+
+
+_SUPERCELLS = st.lists(st.integers(-2, 2), min_size=9, max_size=9).map(lambda v: np.array(v).reshape(3, 3)).filter(
+    lambda m: 2 <= round(abs(np.linalg.det(m))) <= 4)
+
+
+@settings(max_examples=12, derandomize=True, deadline=None)
+@given(_SUPERCELLS)
+def test_any_supercell_gives_the_parent_its_full_symmetry_and_the_same_candidates(matrix):
+    # the crystal is the same whatever cell it is written in (fcc rocksalt, point group m-3m of order 48:
+    # International Tables A, No. 225), so its parent context and candidate families must be too, however skewed
+    # the supercell's lattice (candidate families only, no band energies: fast)
+    if np.linalg.det(matrix) < 0:
+        matrix = matrix * np.array([[-1], [1], [1]])
+    a = 5.993
+    prim = Crystal(FCC * a, [[0, 0, 0], [0.5, 0.5, 0.5]], ["Ge", "Te"])
+    ref, sup = build_parent(prim), build_parent(prim.supercell(matrix))
+    assert len(np.unique(sup.symmetry.rotations, axis=0)) == len(np.unique(ref.symmetry.rotations, axis=0)) == 48
+    key = sorted((f.generator, f.n_atoms) for f in default_candidates(ref))
+    assert sorted((f.generator, f.n_atoms) for f in default_candidates(sup)) == key
