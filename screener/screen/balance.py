@@ -341,10 +341,14 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     if not converged:
         note.append(f"ΔE not converged to {settings.convergence_meV_per_atom} meV/atom on two successive meshes "
                     f"(last mesh {mesh}, last change {residual:.2f} meV/atom)")
+    # a converged refinement's last mesh but one: ΔE there is within the convergence tolerance of the final mesh's
+    range_mesh = previous_mesh if converged and previous_mesh != coarse_mesh else mesh
     if lam_opt > 0 and mesh != coarse_mesh:
-        # the amplitude came from the coarse scan: polish it on the final mesh, one scan step either side
+        # the amplitude came from the coarse scan: polish it one scan step either side on that mesh (the location
+        # of a minimum moves little with the mesh, and an error δ in it changes ΔE only by ½ E'' δ²); its ΔE is
+        # then the final mesh's
         around = np.clip([lam_opt - step, lam_opt, lam_opt + step], 0.0, lam_max)
-        lam_opt = _polish(around, lambda x: sum(e_at(x, mesh)[:2]))
+        lam_opt = _polish(around, lambda x: sum(e_at(x, range_mesh)[:2]))
     if lam_opt > 0:
         d_band, d_el, res_opt = delta(mesh, lam_opt)
     delta_total = d_band + d_el
@@ -357,7 +361,6 @@ def evaluate_family(family: DistortionFamily, context: Parent, progress=None) ->
     # a converged refinement: ΔE at λ_ref changed by less than the convergence tolerance from there to the final
     # mesh, so the members' gains carry that accuracy for a third of the diagonalisation work; the nominal
     # member's ΔE is the final mesh's, polished above (an unconverged sequence keeps its final mesh)
-    range_mesh = previous_mesh if converged and previous_mesh != coarse_mesh else mesh
     if lam_ref > 0 and family.strain_axis is None:
         # the other hopping set only around its own coarse optimum (three amplitudes and λ = 0)
         n_own = len(parent.ensemble)
