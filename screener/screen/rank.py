@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass
 
 import numpy as np
@@ -198,8 +199,22 @@ def _in_input_setting(c: CandidateResult, context) -> CandidateResult:
     from screener.screen.generators import fraction_label
 
     m = context.primitive.supercell_matrix
-    q = np.asarray(c.q_frac) @ m.T  # q·r is the same number in either basis: q_in = q_prim Mᵀ
-    q = q - np.floor(q + 1e-9)
+    q_prim = np.asarray(c.q_frac, dtype=float)
+    if round(abs(float(np.linalg.det(m)))) == 1:
+        q = q_prim @ m.T  # q·r is the same number in either basis: q_in = q_prim Mᵀ
+        q = q - np.floor(q + 1e-9)
+    else:
+        # an input larger than its primitive cell has a finer reciprocal lattice: reduced modulo that one, the
+        # zone-boundary waves of the crystal would all read (0, 0, 0) (simple cubic as 2×2×2: R, M and X alike).
+        # The shortest representative modulo the crystal's own reciprocal lattice is kept instead, written in the
+        # input's reciprocal basis (integers where the wave repeats with the input cell)
+        shifts = np.array(list(itertools.product((-1, 0, 1), repeat=3)))
+        reps = (q_prim - np.floor(q_prim + 1e-9))[None, :] + shifts
+        cart = np.linalg.norm(reps @ context.crystal.reciprocal_A, axis=1)
+        ins = reps @ m.T
+        # shortest first; among equally short ones, the fewest negative components, then the largest
+        order = np.lexsort((*(-ins[:, k] for k in (2, 1, 0)), np.sum(ins < -1e-9, axis=1), np.round(cart, 9)))
+        q = ins[order[0]]
     q = np.where(np.abs(q) < 1e-12, 0.0, q)
     s = c.structure
     moved = Crystal(s.lattice_A, context.primitive.to_input_frame(s.cart_A) @ np.linalg.inv(s.lattice_A),

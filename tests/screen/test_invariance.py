@@ -107,3 +107,16 @@ def test_any_supercell_gives_the_parent_its_full_symmetry_and_the_same_candidate
     assert len(np.unique(sup.symmetry.rotations, axis=0)) == len(np.unique(ref.symmetry.rotations, axis=0)) == 48
     key = sorted((f.generator, f.n_atoms) for f in default_candidates(ref))
     assert sorted((f.generator, f.n_atoms) for f in default_candidates(sup)) == key
+
+
+def test_a_supercell_input_reports_each_wave_vector_as_the_crystal_s_own():
+    # simple cubic written as 2×2×2: the R, X and M waves are integers in the supercell's reciprocal basis
+    # (q_in = q_prim Mᵀ with M = 2·1, arithmetic), not all (0, 0, 0) as a reduction modulo that finer lattice gives
+    prim = {c.generator: c for c in rank(sc_bi(), settings=SETTINGS, progress=False).candidates}
+    sup = {c.generator: c for c in rank(sc_bi().supercell(2), settings=SETTINGS, progress=False).candidates}
+    assert set(sup) == set(prim)
+    for gen, c in sup.items():
+        q_back = np.asarray(c.q_frac) / 2.0
+        diff = q_back - np.asarray(prim[gen].q_frac)
+        assert np.allclose(diff, np.round(diff), atol=1e-9), (gen, c.q_label, prim[gen].q_label)
+        assert np.any(np.asarray(c.q_frac) != 0), (gen, c.q_label)
