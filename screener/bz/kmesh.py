@@ -121,14 +121,41 @@ class IrreducibleMesh:
     """(M,) float, weights summing to 1."""
 
 
+class RecentItems:
+    """The last few items built (most recently used last), found by a test on each; a lock guards the list when
+    items are built in threads. Serves the irreducible meshes here and the tetrahedron tables of each mesh."""
+
+    def __init__(self, size: int):
+        self._items: list = []
+        self._size = int(size)
+        self._lock = threading.Lock()
+
+    def find(self, match):
+        """The most recent item for which ``match(item)`` is true (marked as just used), or None."""
+        with self._lock:
+            for i, item in enumerate(self._items):
+                if match(item):
+                    self._items.append(self._items.pop(i))
+                    return item
+        return None
+
+    def add(self, item):
+        """Keep ``item`` as the most recent one, dropping the oldest beyond the size; returns it."""
+        with self._lock:
+            self._items.append(item)
+            del self._items[:-self._size]
+        return item
+
+    def clear(self) -> None:
+        with self._lock:
+            self._items.clear()
+
+
 #: Irreducible meshes of the last few (mesh, shift, symmetry) keys: a screen reduces one mesh by one point group for
 #: many models, and the reduction (spglib, the grouping of the map) costs more than a small integration. The key
 #: holds the exact bytes of what the reduction depends on (the rotations, or the cell and tolerance searched), so a
-#: hit returns the mesh the same call would build. The arrays of a cached mesh are read-only; the lock guards the
-#: list when meshes are built in threads.
-_MESH_CACHE: list = []
-_MESH_CACHE_SIZE = 8
-_MESH_LOCK = threading.Lock()
+#: hit returns the mesh the same call would build. The arrays of a cached mesh are read-only.
+_MESH_CACHE = RecentItems(8)
 
 
 def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = SYMPREC_A,
@@ -154,16 +181,10 @@ def irreducible_mesh(crystal: Crystal, mesh, shift=(0, 0, 0), symprec: float = S
         key = ("cell", mesh, shift, float(symprec), lat.tobytes(), frac.shape, frac.tobytes(), numbers.tobytes())
     else:
         key = ("full", mesh, shift)
-    with _MESH_LOCK:
-        for i, (k, km) in enumerate(_MESH_CACHE):
-            if k == key:
-                _MESH_CACHE.append(_MESH_CACHE.pop(i))
-                return km
-    km = _reduce_mesh(crystal, mesh, shift, symprec, use_symmetry, rots)
-    with _MESH_LOCK:
-        _MESH_CACHE.append((key, km))
-        del _MESH_CACHE[:-_MESH_CACHE_SIZE]
-    return km
+    hit = _MESH_CACHE.find(lambda item: item[0] == key)
+    if hit is not None:
+        return hit[1]
+    return _MESH_CACHE.add((key, _reduce_mesh(crystal, mesh, shift, symprec, use_symmetry, rots)))[1]
 
 
 def _reduce_mesh(crystal: Crystal, mesh: tuple, shift: tuple, symprec: float, use_symmetry: bool,

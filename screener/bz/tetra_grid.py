@@ -7,7 +7,7 @@ import threading
 import numpy as np
 
 from screener.bz.common import _CHUNK_ROWS, _gap, _pair_blocks, _solve_count
-from screener.bz.kmesh import IrreducibleMesh
+from screener.bz.kmesh import IrreducibleMesh, RecentItems
 from screener.bz.tetrahedron import (
     _corner_table,
     _cube_corner_index,
@@ -55,10 +55,8 @@ class _MeshTables:
 #: Tables of the last few meshes: a screen integrates many models on one mesh and symmetry, and the tables cost
 #: more than an integration. A hit needs equal mapping and grid addresses (compared in full, not hashed), or the
 #: very mesh object the tables were built from when its arrays are read-only (as `irreducible_mesh` returns them).
-#: The tables are read-only; the lock guards the list when integrations run in threads.
-_TABLE_CACHE: list[_MeshTables] = []
-_TABLE_CACHE_SIZE = 4
-_TABLE_LOCK = threading.Lock()
+#: The tables are read-only.
+_TABLE_CACHE = RecentItems(4)
 
 
 def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) -> _MeshTables:
@@ -66,19 +64,17 @@ def _mesh_tables(kmesh: IrreducibleMesh, mesh: tuple, flip: tuple, n_ir: int) ->
     mapping, addr = np.asarray(kmesh.mapping), np.asarray(kmesh.grid_address)
     key = (mesh, flip, n_ir, mapping.shape, addr.shape)
     frozen = not (mapping.flags.writeable or addr.flags.writeable)
-    with _TABLE_LOCK:
-        for i, t in enumerate(_TABLE_CACHE):
-            if t.key == key and ((frozen and t.source is kmesh) or (np.array_equal(t.mapping, mapping)
-                                                                   and np.array_equal(t.grid_address, addr))):
-                _TABLE_CACHE.append(_TABLE_CACHE.pop(i))
-                return t
+    def same(t):
+        return t.key == key and ((frozen and t.source is kmesh) or (np.array_equal(t.mapping, mapping)
+                                                                    and np.array_equal(t.grid_address, addr)))
+
+    hit = _TABLE_CACHE.find(same)
+    if hit is not None:
+        return hit
     t = _build_mesh_tables(mapping, addr, mesh, flip, n_ir)
     t.key = key
     t.source = kmesh if frozen else None
-    with _TABLE_LOCK:
-        _TABLE_CACHE.append(t)
-        del _TABLE_CACHE[:-_TABLE_CACHE_SIZE]
-    return t
+    return _TABLE_CACHE.add(t)
 
 
 def _build_mesh_tables(mapping: np.ndarray, addr: np.ndarray, mesh: tuple, flip: tuple, n_ir: int) -> _MeshTables:
