@@ -198,41 +198,31 @@ def commensurate_supercell(q_frac, lattice_A) -> np.ndarray:
         # shortest first, then the smallest integer coefficients, then lexicographic (a fixed order)
         order = np.lexsort((cands[:, 2], cands[:, 1], cands[:, 0], np.abs(cands).sum(1), lengths))
         cands, lengths = cands[order], lengths[order]
-        first = None
+        # the first basis found is a shortest one; the others as short compete for the most uniform k-mesh: they
+        # use only rows no longer than its longest (a prefix of the length-sorted list), in the same order
+        first, best, best_spread, short, tol = None, None, np.inf, len(cands), 0.0
         for a, c in itertools.combinations(range(min(len(cands), 40)), 2):
-            normal = np.cross(cands[a], cands[c])
+            if first is not None and (c >= short or lengths[a] + lengths[c] > first[1] + first[2] + tol):
+                continue  # a row longer than the shortest basis's, or v1, v2 together longer than two of its rows
+            v1, v2 = cands[a], cands[c]
+            normal = np.cross(v1, v2)
             if not normal.any():
                 continue
-            dets = cands @ normal  # det [v1; v2; v3] for every candidate v3, exact in integers
-            hit = np.flatnonzero(np.abs(dets) == index)
-            if len(hit):
-                first = np.sort(np.linalg.norm(np.array([cands[a], cands[c], cands[hit[0]]]) @ lattice, axis=1))
-                break
-        best, best_spread = None, np.inf
-        if first is not None:
-            # the bases as short as that first (shortest) one: every row among the candidates no longer than its
-            # longest row (a prefix of the length-sorted list), in the same order as above
-            short = int(np.count_nonzero(lengths <= first[2] * (1 + 1e-9)))
-            tol = 1e-9 * first[2]
-            for a, c in itertools.combinations(range(min(short, 40)), 2):
-                if lengths[a] + lengths[c] > first[1] + first[2] + tol:
-                    continue  # v1, v2 together longer than any two rows of the shortest basis
-                v1, v2 = cands[a], cands[c]
-                normal = np.cross(v1, v2)
-                if not normal.any():
+            dets = cands[:short] @ normal  # det [v1; v2; v3] for every candidate v3, exact in integers
+            for h in np.flatnonzero(np.abs(dets) == index):
+                if first is None:
+                    first = np.sort(lengths[[a, c, h]])
+                    short, tol = int(np.count_nonzero(lengths <= first[2] * (1 + 1e-9))), 1e-9 * first[2]
+                if np.any(np.abs(np.sort(lengths[[a, c, h]]) - first) > tol):
                     continue
-                dets = cands[:short] @ normal
-                for h in np.flatnonzero(np.abs(dets) == index):
-                    if np.any(np.abs(np.sort([lengths[a], lengths[c], lengths[h]]) - first) > tol):
-                        continue
-                    rows = np.array([v1, v2, cands[h] if dets[h] > 0 else -cands[h]])
-                    # among equally short bases, the one whose reciprocal vectors are closest to equal length: its
-                    # k-mesh is closest to uniform, so more of the crystal's rotations map it onto itself and the
-                    # irreducible wedge stays small (a skewed basis of the same lattice breaks the mesh's symmetry)
-                    recip = np.linalg.norm(np.linalg.inv(rows @ lattice), axis=0)
-                    spread = float(recip.max() / recip.min())
-                    if spread < best_spread * (1 - 1e-9):
-                        best, best_spread = rows, spread
+                rows = np.array([v1, v2, cands[h] if dets[h] > 0 else -cands[h]])
+                # among equally short bases, the one whose reciprocal vectors are closest to equal length: its
+                # k-mesh is closest to uniform, so more of the crystal's rotations map it onto itself and the
+                # irreducible wedge stays small (a skewed basis of the same lattice breaks the mesh's symmetry)
+                recip = np.linalg.norm(np.linalg.inv(rows @ lattice), axis=0)
+                spread = float(recip.max() / recip.min())
+                if spread < best_spread * (1 - 1e-9):
+                    best, best_spread = rows, spread
         if best is not None:
             return best
     if round(float(np.linalg.det(red))) < 0:
