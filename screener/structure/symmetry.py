@@ -146,6 +146,12 @@ def standard_primitive(crystal: Crystal, info: SymmetryInfo) -> StandardPrimitiv
     return _standardise(crystal, info)[0]
 
 
+def _orbit_representatives(orbit) -> np.ndarray:
+    """(n,) index of the first atom with the same orbit label as each atom."""
+    orbit = np.asarray(orbit)
+    return np.array([np.flatnonzero(orbit == orbit[k]).min() for k in range(len(orbit))], dtype=int)
+
+
 def _standardise(crystal: Crystal, info: SymmetryInfo):
     P = info.transformation_matrix
     conv = np.linalg.inv(P).T @ crystal.lattice_A
@@ -185,7 +191,7 @@ def _standardise(crystal: Crystal, info: SymmetryInfo):
     mine = np.empty(spg_index.max() + 1, dtype=int)
     mine[spg_index] = np.arange(len(source))
     orbit = mine[info.mapping_to_primitive[info.equivalent_atoms[source]]]
-    rep = np.array([np.flatnonzero(orbit == orbit[k]).min() for k in range(len(source))])
+    rep = _orbit_representatives(orbit)
     rots_p, trans_p = rots_i[first], trans[first]
     if round(abs(float(np.linalg.det(m)))) > 1:
         # spglib lists only the operations that map the input's own lattice onto itself: for a supercell whose
@@ -195,8 +201,7 @@ def _standardise(crystal: Crystal, info: SymmetryInfo):
         full = analyse(prim_crystal, info.symprec_A)
         if len(full.rotations) > len(rots_p):
             rots_p, trans_p = np.asarray(full.rotations, dtype=int), np.asarray(full.translations, dtype=float)
-            rep = np.array([np.flatnonzero(full.equivalent_atoms == full.equivalent_atoms[k]).min()
-                            for k in range(len(source))])
+            rep = _orbit_representatives(full.equivalent_atoms)
     prim_info = SymmetryInfo(
         symbol=info.symbol, number=info.number, wyckoff=tuple(info.wyckoff[k] for k in source),
         equivalent_atoms=rep, rotations=rots_p, translations=trans_p,
