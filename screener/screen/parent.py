@@ -293,7 +293,7 @@ def _fit_bending(parent: Parent, params: ParameterSet, model, mesh, band0_eV: fl
     """Each closure member with its bond-bending constant κ fitted to the measured shear constants of the parent's
     phase (`bending_for_shear`), or unchanged with the reason there is none. Returns (members, shear closure, what
     was used)."""
-    from screener.screen.modes import cube_axes, cubic_shear_strains, strained_band_energy_eV
+    from screener.screen.modes import EV_PER_A3_IN_GPA, cube_axes, cubic_shear_strains, strained_band_energy_eV
 
     crystal, settings, bonds = parent.crystal, parent.settings, parent.bonds
     hit = shear_constants_for(crystal, parent.symmetry.number)
@@ -304,31 +304,30 @@ def _fit_bending(parent: Parent, params: ParameterSet, model, mesh, band0_eV: fl
     cp = 0.5 * (c11 - c12)
     axes = cube_axes(parent.point_group_cart)
     if not all(model.periodic) or axes is None:
-        return ensemble, "none", "measured shear constants exist but the cell is not a cubic 3-D crystal: no bending term"
-    from screener.screen.modes import EV_PER_A3_IN_GPA
-
+        return ensemble, "none", ("measured shear constants exist but the cell is not a cubic 3-D crystal: no bending "
+                                  "term")
     h, vol, frac = SHEAR_FIT_STEP, crystal.volume_A3, crystal.frac
     strains = cubic_shear_strains(axes, h)
     per = (1.0 / (vol * h * h), 1.0 / (4 * vol * h * h))  # second difference → C44, → C'
     rots = parent.symmetry.rotations
 
-    def second_difference(energy, strain):
-        return (energy(strain) - 2 * energy(np.zeros((3, 3))) + energy(-strain))
+    def shear_constants(energy) -> list[float]:
+        """(C44, C') in GPa of an energy function of the strain tensor, by central second differences."""
+        return [(energy(e) - 2 * energy(np.zeros((3, 3))) + energy(-e)) * f * EV_PER_A3_IN_GPA
+                for e, f in zip(strains, per, strict=True)]
 
     def band(strain):
         if not np.any(strain):
             return band0_eV
         return strained_band_energy_eV(crystal, params, bonds, settings, mesh, rots, strain)
 
-    band_c = [second_difference(band, e) * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
+    band_c = shear_constants(band)
     unit = elastic_model_for(crystal, params, bonds, 0.0, 1.0, bending_eV=1.0)
-    bend_c = [second_difference(lambda e: unit.bending_energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac), e)
-              * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
+    bend_c = shear_constants(lambda e: unit.bending_energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac))
     out, notes = [], []
     for label, a, m, _ in ensemble:
         el = elastic_model_for(crystal, params, bonds, a, m)
-        pair_c = [second_difference(lambda e, el=el: el.energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac), e)
-                  * f * EV_PER_A3_IN_GPA for e, f in zip(strains, per, strict=True)]
+        pair_c = shear_constants(lambda e, el=el: el.energy_eV(crystal.lattice_A @ (np.eye(3) + e), frac))
         c0 = [b + q for b, q in zip(band_c, pair_c, strict=True)]
         kappa = bending_for_shear(c0[0], c0[1], bend_c[0], bend_c[1], c44, cp)
         out.append((label, a, m, kappa))
