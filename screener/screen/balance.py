@@ -134,6 +134,17 @@ class _Evaluator:
             self._members_at[key] = self.family.at_with_shift(amplitude_A, strain)
         return self._members_at[key]
 
+    def _model_at(self, amplitude_A: float, strain: float):
+        """The tight-binding model of member (λ, ε), built once whatever the meshes it is solved on; its bonds are
+        the reference's, followed to the wrapped atoms."""
+        key = (float(amplitude_A), float(strain))
+        if key not in self._models:
+            crystal, shift = self._at(amplitude_A, strain)
+            b = self.bonds
+            self._models[key] = self._build(crystal, self.params,
+                                            bonds=type(b)(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift)))
+        return self._models[key]
+
     def _elastic_per_atom(self, el: ElasticModel, crystal: Crystal, shift: np.ndarray) -> float:
         """Elastic energy per atom of ``crystal`` (a family member whose atoms were wrapped by ``shift``)."""
         return el.energy_eV(crystal.lattice_A, crystal.frac, follow_bonds(el.i, el.j, el.image, shift)) / self.n_atoms
@@ -148,12 +159,7 @@ class _Evaluator:
         from screener.bz.integrate import solve_on_mesh
 
         crystal, shift = self._at(amplitude_A, strain)
-        key = (float(amplitude_A), float(strain))
-        model = self._models.get(key)
-        if model is None:  # one model per member, whatever the mesh it is solved on
-            b = self.bonds
-            bonds = type(b)(b.i, b.j, follow_bonds(b.i, b.j, b.image, shift))
-            model = self._models[key] = self._build(crystal, self.params, bonds=bonds)
+        model = self._model_at(amplitude_A, strain)
         # k-points may only be folded by symmetries the distorted structure really has: a tolerance above the
         # displacement would lend it the parent's symmetry
         symprec = self.settings.symprec_A if amplitude_A == 0 else min(self.settings.symprec_A, 0.1 * amplitude_A)
