@@ -35,9 +35,7 @@ def _symbols_by_number() -> dict[int, set[str]]:
     out: dict[int, set[str]] = {}
     for hall in range(1, 531):
         t = spglib.get_spacegroup_type(hall)
-        num = t.number if hasattr(t, "number") else t["number"]
-        sym = t.international_short if hasattr(t, "international_short") else t["international_short"]
-        out.setdefault(num, set()).add(sym.replace("_", "").replace(" ", ""))
+        out.setdefault(t.number, set()).add(t.international_short.replace("_", "").replace(" ", ""))
     out[64] |= {"Cmca"}
     return out
 
